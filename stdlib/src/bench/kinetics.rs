@@ -1,0 +1,267 @@
+//! Benchmark workloads of the physical-time kinetics ([`crate::dynamics`]).
+
+use super::BenchRecord;
+use crate::control::Interrupt;
+use crate::dynamics::{AcceptanceRule, Execution, Kinetics, NearestNeighbourFlipEnergy};
+use crate::gating::{AttemptTimes, SlowGate, DEFAULT_SLOW_RATIO};
+use crate::hamiltonian::NearestNeighbourIce;
+use crate::lattice::Pyrochlore;
+use crate::metropolis::{initial_configuration, Start};
+use crate::rng::RngStreams;
+use std::time::{Duration, Instant};
+
+/// Physical time simulated per CPU second, rejection-free over attempt-based.
+pub const KINETICS_REJECTION_FREE_SPEEDUP: &str = "kinetics_rejection_free_speedup";
+/// Rejection-free events per second with the bimodal gated rule.
+pub const KINETICS_GATED_EVENTS: &str = "kinetics_gated_events";
+
+/// Parameters shared by the kinetics benchmarks.
+#[derive(Clone, Debug)]
+pub struct KineticsBench {
+    /// L.
+    pub cells_per_side: usize,
+    /// J_eff (K).
+    pub j_eff_kelvin: f64,
+    /// Temperatures (K), one record each for the speed-up benchmark.
+    pub temperatures_kelvin: Vec<f64>,
+    /// Rejection-free preparation from the ice state, in attempt times τ0
+    /// (equilibrates the monopole density; untimed).
+    pub preparation_tau0: f64,
+    /// Wall time per execution and temperature.
+    pub time_per_execution: Duration,
+}
+
+impl Default for KineticsBench {
+    fn default() -> Self {
+        Self {
+            cells_per_side: 8,
+            j_eff_kelvin: 1.1,
+            temperatures_kelvin: vec![0.3, 0.5],
+            preparation_tau0: 20_000.0,
+            time_per_execution: Duration::from_millis(1500),
+        }
+    }
+}
+
+/// Simulated seconds per wall second of `execution` over about `budget`
+/// (single thread, so wall time is CPU time); also events per second.
+fn simulated_per_second(
+    engine: &mut Kinetics<'_, NearestNeighbourFlipEnergy>,
+    execution: Execution,
+    budget: Duration,
+    step_tau0: f64,
+    interrupt: &Interrupt,
+) -> (f64, f64, bool) {
+    let start = Instant::now();
+    let t0 = engine.time_seconds();
+    let flips0 = engine.flip_count();
+    let mut target = t0;
+    loop {
+        target += step_tau0;
+        while !engine.advance(target, execution, 1 << 16, &mut ()) {
+            if interrupt.is_requested() || start.elapsed() > budget * 4 {
+                break;
+            }
+        }
+        let elapsed = start.elapsed();
+        if elapsed >= budget || interrupt.is_requested() {
+            let simulated = engine.time_seconds() - t0;
+            let flips = (engine.flip_count() - flips0) as f64;
+            return (
+                simulated / elapsed.as_secs_f64(),
+                flips / elapsed.as_secs_f64(),
+                interrupt.is_requested(),
+            );
+        }
+    }
+}
+
+fn prepared_engine<'a>(
+    lat: &'a Pyrochlore,
+    params: &KineticsBench,
+    temperature_kelvin: f64,
+    attempt_times: AttemptTimes,
+    seed: u64,
+    interrupt: &Interrupt,
+) -> Kinetics<'a, NearestNeighbourFlipEnergy> {
+    let model = NearestNeighbourIce::new(params.j_eff_kelvin);
+    let streams = RngStreams::new(seed);
+    let mut rng = streams.stream(0);
+    let sigma = initial_configuration(lat, Start::IceState, &mut rng);
+    let mut engine = Kinetics::new(
+        lat,
+        NearestNeighbourFlipEnergy::new(&model, None).expect("no field"),
+        sigma,
+        AcceptanceRule::Metropolis,
+        temperature_kelvin,
+        attempt_times,
+        streams.stream(1),
+    )
+    .expect("valid benchmark parameters");
+    let _ = engine.run_for(params.preparation_tau0, Execution::RejectionFree, interrupt);
+    engine
+}
+
+/// The [`KINETICS_REJECTION_FREE_SPEEDUP`] workload: one record per temperature.
+pub fn kinetics_rejection_free_speedup(
+    params: &KineticsBench,
+    interrupt: &Interrupt,
+) -> Vec<BenchRecord> {
+    let lat = match Pyrochlore::new(params.cells_per_side) {
+        Ok(l) => l,
+        Err(e) => {
+            let mut extra = serde_json::Map::new();
+            extra.insert("error".into(), e.to_string().into());
+            return vec![BenchRecord {
+                bench: KINETICS_REJECTION_FREE_SPEEDUP.into(),
+                value: 0.0,
+                unit: "ratio".into(),
+                extra,
+            }];
+        }
+    };
+    let mut records = Vec::new();
+    for (k, &t) in params.temperatures_kelvin.iter().enumerate() {
+        let times = AttemptTimes::uniform(1.0).expect("τ0 = 1 s is valid");
+        let mut engine = prepared_engine(&lat, params, t, times, 31 + k as u64, interrupt);
+        let monopoles = engine.monopole_count();
+        let (attempt_rate, attempt_flips, i1) = simulated_per_second(
+            &mut engine,
+            Execution::AttemptBased,
+            params.time_per_execution,
+            1.0,
+            interrupt,
+        );
+        let (free_rate, free_events, i2) = simulated_per_second(
+            &mut engine,
+            Execution::RejectionFree,
+            params.time_per_execution,
+            1.0,
+            interrupt,
+        );
+        let mut extra = serde_json::Map::new();
+        extra.insert("T".into(), t.into());
+        extra.insert("L".into(), params.cells_per_side.into());
+        extra.insert("J_eff_K".into(), params.j_eff_kelvin.into());
+        extra.insert("spins".into(), lat.spin_count().into());
+        extra.insert("threads".into(), 1.into());
+        extra.insert("tau0_s".into(), 1.0.into());
+        extra.insert("monopoles_at_start".into(), monopoles.into());
+        extra.insert(
+            "attempt_based_simulated_s_per_cpu_s".into(),
+            attempt_rate.into(),
+        );
+        extra.insert(
+            "rejection_free_simulated_s_per_cpu_s".into(),
+            free_rate.into(),
+        );
+        extra.insert("attempt_based_flips_per_s".into(), attempt_flips.into());
+        extra.insert("rejection_free_events_per_s".into(), free_events.into());
+        extra.insert("goal".into(), "≥ 200 at T = 0.3 K".into());
+        if i1 || i2 {
+            extra.insert("interrupted".into(), true.into());
+        }
+        records.push(BenchRecord {
+            bench: KINETICS_REJECTION_FREE_SPEEDUP.into(),
+            value: if attempt_rate > 0.0 {
+                free_rate / attempt_rate
+            } else {
+                0.0
+            },
+            unit: "ratio".into(),
+            extra,
+        });
+        if interrupt.is_requested() {
+            break;
+        }
+    }
+    records
+}
+
+/// The [`KINETICS_GATED_EVENTS`] workload: bimodal gates (h⊥ = 0 spins
+/// 10⁴ times slower), rejection-free, at the first temperature of `params`
+/// above 0.4 K (0.5 K by default).
+pub fn kinetics_gated_events(params: &KineticsBench, interrupt: &Interrupt) -> BenchRecord {
+    let t = params
+        .temperatures_kelvin
+        .iter()
+        .copied()
+        .find(|&t| t > 0.4)
+        .unwrap_or(0.5);
+    let mut extra = serde_json::Map::new();
+    let lat = match Pyrochlore::new(params.cells_per_side) {
+        Ok(l) => l,
+        Err(e) => {
+            extra.insert("error".into(), e.to_string().into());
+            return BenchRecord {
+                bench: KINETICS_GATED_EVENTS.into(),
+                value: 0.0,
+                unit: "events/s".into(),
+                extra,
+            };
+        }
+    };
+    let times = AttemptTimes::bimodal(1.0, SlowGate::Ratio(DEFAULT_SLOW_RATIO))
+        .expect("valid bimodal preset");
+    let mut engine = prepared_engine(&lat, params, t, times, 77, interrupt);
+    let (simulated, events, interrupted) = simulated_per_second(
+        &mut engine,
+        Execution::RejectionFree,
+        params.time_per_execution,
+        1.0,
+        interrupt,
+    );
+    extra.insert("T".into(), t.into());
+    extra.insert("L".into(), params.cells_per_side.into());
+    extra.insert("J_eff_K".into(), params.j_eff_kelvin.into());
+    extra.insert(
+        "rule".into(),
+        "bimodal gates, slow ratio 1e4, Metropolis".into(),
+    );
+    extra.insert("execution".into(), "rejection-free".into());
+    extra.insert("threads".into(), 1.into());
+    extra.insert("simulated_s_per_cpu_s".into(), simulated.into());
+    if interrupted {
+        extra.insert("interrupted".into(), true.into());
+    }
+    BenchRecord {
+        bench: KINETICS_GATED_EVENTS.into(),
+        value: events,
+        unit: "events/s".into(),
+        extra,
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn records_have_the_documented_fields() {
+        let params = KineticsBench {
+            cells_per_side: 2,
+            preparation_tau0: 20.0,
+            time_per_execution: Duration::from_millis(30),
+            ..Default::default()
+        };
+        let records = kinetics_rejection_free_speedup(&params, &Interrupt::new());
+        assert_eq!(records.len(), 2);
+        for (r, t) in records.iter().zip([0.3, 0.5]) {
+            let json = serde_json::to_value(r).unwrap();
+            assert_eq!(json["bench"], KINETICS_REJECTION_FREE_SPEEDUP);
+            assert_eq!(json["T"], t);
+            let a = json["attempt_based_simulated_s_per_cpu_s"]
+                .as_f64()
+                .unwrap();
+            let b = json["rejection_free_simulated_s_per_cpu_s"]
+                .as_f64()
+                .unwrap();
+            assert!(a > 0.0 && b > 0.0);
+            assert!((json["value"].as_f64().unwrap() - b / a).abs() < 1e-9 * (b / a));
+        }
+        let gated =
+            serde_json::to_value(kinetics_gated_events(&params, &Interrupt::new())).unwrap();
+        assert_eq!(gated["unit"], "events/s");
+        assert!(gated["value"].as_f64().unwrap() > 0.0);
+    }
+}

@@ -1,0 +1,1604 @@
+//! Single-spin-flip kinetics in physical time (seconds).
+//!
+//! Model of time (Jaubert & Holdsworth, Nat. Phys. 5, 258 (2009);
+//! physics-reference §5): every spin attempts a flip as a Poisson process
+//! with attempt time τ (seconds), and an attempt is accepted with
+//! `min(1, e^{−ΔE/T})` (Metropolis) or `1/(1 + e^{ΔE/T})` (Glauber). The
+//! attempt time may depend on the spin's environment through its transverse-
+//! field class ([`crate::gating`]), so spin `i` flips at rate
+//! `r_i = A(ΔE_i, T) / τ(class_i)`.
+//!
+//! Two executions of the same stochastic process:
+//! * [`Execution::AttemptBased`]: attempts at uniformly random sites, each
+//!   advancing the clock by `τ_min/N` (N attempts = one shortest attempt time,
+//!   the usual "a sweep is τ0" mapping); an attempt on a spin of a slower class
+//!   is additionally thinned by `τ_min/τ(class)`, which is exact for Poisson
+//!   attempt processes.
+//! * [`Execution::RejectionFree`]: the n-fold way of Bortz, Kalos & Lebowitz,
+//!   J. Comput. Phys. 17, 10 (1975) (Gillespie's direct method): spins are
+//!   grouped into classes by (energy class, gate class); an event class is
+//!   drawn with probability ∝ (members × rate), a member uniformly, and the
+//!   clock advances by an exponential variate of the total rate. Classes
+//!   with equal rates share one bucket ("rate group"; without a field the
+//!   nearest-neighbour model has at most 4 distinct ΔE rates per gate class),
+//!   and event selection scans the groups in descending-rate order, so its
+//!   cost does not grow with N; each flip moves the flipped spin and its six
+//!   neighbours between
+//!   buckets in O(1) (swap-remove with an index map).
+//!
+//! Energetics are pluggable through [`DiscreteFlipEnergy`]: any Hamiltonian
+//! whose single-flip energy changes take a finite set of values ("energy
+//! classes"), with a cache updated after every accepted flip. The
+//! nearest-neighbour model with a uniform Zeeman field is
+//! [`NearestNeighbourFlipEnergy`]. A dipolar Hamiltonian with local-field
+//! caches fits the attempt-based execution through the same trait by
+//! binning its ΔE; its exact rejection-free execution will need thinning
+//! against per-class rate bounds (physics-reference §5), which is not here.
+//!
+//! The engine keeps tetrahedron sums (charges), per-sublattice pseudospin
+//! sums (magnetisation in O(1)), charge counts and per-spin gate classes up
+//! to date on every flip, so sampling `M(t)` and the monopole count on a
+//! uniform time grid costs nothing per flip.
+
+use crate::control::{Interrupt, Progress, ProgressFn};
+use crate::gating::{self, AttemptTimes, GateClasses, GatingError, GATE_CLASS_COUNT};
+use crate::hamiltonian::NearestNeighbourIce;
+use crate::lattice::{easy_axis, LatticeError, Pyrochlore};
+use crate::metropolis::{initial_configuration, NearestNeighbourMetropolis, Start};
+use crate::rng::{RngStreams, SpinRng};
+use rand::{Rng, RngCore};
+use serde::{Deserialize, Serialize};
+use std::fmt;
+
+/// μ_B/k_B in K/T (CODATA 2018, physics-reference §2).
+pub const BOHR_MAGNETON_KELVIN_PER_TESLA: f64 = 0.671_713_81;
+
+/// Most samples one recording may hold (memory guard for user input).
+pub const MAX_SAMPLES: u64 = 50_000_000;
+
+/// Steps (attempts or events) between two interrupt polls.
+const STEPS_PER_POLL: u64 = 1 << 18;
+
+/// Acceptance probability of a proposed flip.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
+pub enum AcceptanceRule {
+    /// `min(1, e^{−ΔE/T})` (Metropolis et al., J. Chem. Phys. 21, 1087 (1953)).
+    Metropolis,
+    /// `1/(1 + e^{ΔE/T})` (Glauber, J. Math. Phys. 4, 294 (1963)).
+    Glauber,
+}
+
+impl AcceptanceRule {
+    /// Probability of accepting a flip costing `delta_e_kelvin` at
+    /// `temperature_kelvin` (T ≤ 0 is read as T → 0⁺).
+    pub fn probability(self, delta_e_kelvin: f64, temperature_kelvin: f64) -> f64 {
+        let x = if temperature_kelvin > 0.0 {
+            delta_e_kelvin / temperature_kelvin
+        } else if delta_e_kelvin > 0.0 {
+            f64::INFINITY
+        } else if delta_e_kelvin < 0.0 {
+            f64::NEG_INFINITY
+        } else {
+            0.0
+        };
+        match self {
+            AcceptanceRule::Metropolis => {
+                if x <= 0.0 {
+                    1.0
+                } else {
+                    (-x).exp()
+                }
+            }
+            AcceptanceRule::Glauber => {
+                // Written so neither branch overflows.
+                if x >= 0.0 {
+                    let e = (-x).exp();
+                    e / (1.0 + e)
+                } else {
+                    1.0 / (1.0 + x.exp())
+                }
+            }
+        }
+    }
+}
+
+/// How the kinetics are executed (both simulate the same process).
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
+pub enum Execution {
+    /// Random-site attempts, `τ_min/N` of physical time each.
+    AttemptBased,
+    /// Bortz–Kalos–Lebowitz n-fold way (J. Comput. Phys. 17, 10 (1975)).
+    RejectionFree,
+}
+
+/// A uniform magnetic field coupling to the moments as `−μ Σ_i S_i·B`.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct ZeemanField {
+    /// |B| (T).
+    pub field_tesla: f64,
+    /// Direction of B (any non-zero length; normalised on use).
+    pub direction: [f64; 3],
+    /// Moment μ per spin in Bohr magnetons (about 10 for Dy and Ho titanates,
+    /// physics-reference §2).
+    pub moment_bohr_magnetons: f64,
+}
+
+impl ZeemanField {
+    /// Unit vector along the field, `None` for a zero or non-finite direction.
+    pub fn unit_direction(&self) -> Option<[f64; 3]> {
+        unit(self.direction)
+    }
+
+    /// `μB (e_a·n̂)` (K) for the four sublattices: the Zeeman energy of a spin
+    /// is `−σ` times this, so a flip costs `+2σ` times it.
+    pub fn sublattice_energy_kelvin(&self) -> Option<[f64; 4]> {
+        let n = self.unit_direction()?;
+        if !self.field_tesla.is_finite() || !self.moment_bohr_magnetons.is_finite() {
+            return None;
+        }
+        let mu_b = self.moment_bohr_magnetons * BOHR_MAGNETON_KELVIN_PER_TESLA * self.field_tesla;
+        Some([0, 1, 2, 3].map(|a| mu_b * crate::lattice::dot(easy_axis(a), n)))
+    }
+}
+
+fn unit(v: [f64; 3]) -> Option<[f64; 3]> {
+    let n = crate::lattice::dot(v, v).sqrt();
+    if n.is_finite() && n > 0.0 {
+        Some(v.map(|c| c / n))
+    } else {
+        None
+    }
+}
+
+/// Read-only view of the engine's spin state passed to energetics.
+#[derive(Clone, Copy, Debug)]
+pub struct SpinView<'s> {
+    /// The lattice.
+    pub lattice: &'s Pyrochlore,
+    /// Pseudospins ±1.
+    pub sigma: &'s [i8],
+    /// `S_t = Σ_{i∈t} σ_i` per tetrahedron.
+    pub tetrahedron_sums: &'s [i8],
+}
+
+/// Energetics the kinetic engine can drive: flip energy changes that take a
+/// finite set of values ("energy classes"), plus a cache hook.
+///
+/// Contract: `energy_class` returns a value below `energy_class_count`; the
+/// class of a spin changes only when the spin itself or one of its six
+/// nearest neighbours flips (true for the nearest-neighbour model with a
+/// uniform field; wider couplings need a wider update set, not offered yet).
+pub trait DiscreteFlipEnergy {
+    /// Number of energy classes.
+    fn energy_class_count(&self) -> usize;
+    /// Energy class of flipping `spin` in `state`.
+    fn energy_class(&self, state: &SpinView<'_>, spin: usize) -> usize;
+    /// ΔE (K) of a flip in energy class `class`.
+    fn energy_class_cost_kelvin(&self, class: usize) -> f64;
+    /// Called after `spin` flipped (`state` is the state after the flip), to
+    /// update caches such as local fields.
+    fn after_flip(&mut self, state: &SpinView<'_>, spin: usize);
+}
+
+/// `H = J_eff Σ_⟨ij⟩ σ_iσ_j − Σ_i σ_i μB(e_a·n̂)` (physics-reference §2).
+///
+/// Energy class `((k + 6)/2)·8 + 2a + [σ = +1]` with `k = σ_i h_i`,
+/// `h_i = Σ_{j∈nn(i)} σ_j` (even, −6..=6), `a` the sublattice:
+/// `ΔE = −2 J_eff k + 2σ μB(e_a·n̂)`; 56 classes.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct NearestNeighbourFlipEnergy {
+    /// J_eff (K).
+    pub j_eff_kelvin: f64,
+    /// `μB (e_a·n̂)` (K) per sublattice (zeros without a field).
+    pub zeeman_kelvin: [f64; 4],
+}
+
+impl NearestNeighbourFlipEnergy {
+    /// From the model and an optional field; `None` for an unusable field
+    /// (zero direction, non-finite values).
+    pub fn new(model: &NearestNeighbourIce, field: Option<&ZeemanField>) -> Option<Self> {
+        let zeeman_kelvin = match field {
+            None => [0.0; 4],
+            Some(f) => f.sublattice_energy_kelvin()?,
+        };
+        Some(Self {
+            j_eff_kelvin: model.j_eff_kelvin,
+            zeeman_kelvin,
+        })
+    }
+}
+
+impl DiscreteFlipEnergy for NearestNeighbourFlipEnergy {
+    fn energy_class_count(&self) -> usize {
+        56
+    }
+
+    #[inline(always)]
+    fn energy_class(&self, state: &SpinView<'_>, spin: usize) -> usize {
+        let s = state.sigma[spin];
+        let up = state.tetrahedron_sums[spin >> 2];
+        let down = state.tetrahedron_sums[state.lattice.down_tetrahedra()[spin] as usize];
+        // k = σ h with h = S_up + S_down − 2σ ∈ {−6, …, 6}.
+        let k = (s * (up + down - 2 * s)) as i32;
+        (((k + 6) >> 1) as usize) * 8 + (spin & 3) * 2 + (s > 0) as usize
+    }
+
+    fn energy_class_cost_kelvin(&self, class: usize) -> f64 {
+        let k = (class / 8) as f64 * 2.0 - 6.0;
+        let a = (class % 8) / 2;
+        let s = if class % 2 == 1 { 1.0 } else { -1.0 };
+        -2.0 * self.j_eff_kelvin * k + 2.0 * s * self.zeeman_kelvin[a]
+    }
+
+    #[inline(always)]
+    fn after_flip(&mut self, _state: &SpinView<'_>, _spin: usize) {}
+}
+
+/// What an observer sees of one flip (the state is the one after it).
+#[derive(Clone, Copy, Debug)]
+pub struct FlipEvent<'s> {
+    /// Physical time of the flip (s).
+    pub time_seconds: f64,
+    /// The spin that flipped.
+    pub spin: usize,
+    /// Gate class of the spin when it flipped.
+    pub gate_class: u8,
+    /// State after the flip.
+    pub state: SpinView<'s>,
+}
+
+/// Receives every flip (static dispatch; `()` ignores them).
+pub trait FlipObserver {
+    /// Called once per flip, after the state is updated.
+    fn on_flip(&mut self, event: &FlipEvent<'_>);
+}
+
+impl FlipObserver for () {
+    #[inline(always)]
+    fn on_flip(&mut self, _event: &FlipEvent<'_>) {}
+}
+
+/// Why a kinetics run could not start.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub enum KineticsError {
+    /// The lattice could not be built.
+    Lattice(LatticeError),
+    /// The attempt-time table is unusable.
+    Gating(GatingError),
+    /// Configuration length or entries are wrong.
+    InvalidConfiguration {
+        /// Expected number of spins.
+        expected_spins: usize,
+        /// Entries given.
+        given: usize,
+    },
+    /// A temperature that is not a finite number ≥ 0.
+    InvalidTemperature(f64),
+    /// A duration that is not a finite number ≥ 0.
+    InvalidDuration(f64),
+    /// A sample interval that is not a finite positive number.
+    InvalidSampleInterval(f64),
+    /// The grid would hold more than [`MAX_SAMPLES`] samples.
+    TooManySamples {
+        /// Samples requested.
+        samples: u64,
+    },
+    /// The field is unusable (zero direction or non-finite values).
+    InvalidField,
+    /// A field quench needs a field to switch off.
+    MissingField,
+    /// A projection axis of zero length or non-finite.
+    InvalidProjectionAxis,
+}
+
+impl fmt::Display for KineticsError {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        match self {
+            KineticsError::Lattice(e) => write!(f, "{e}"),
+            KineticsError::Gating(e) => write!(f, "{e}"),
+            KineticsError::InvalidConfiguration {
+                expected_spins,
+                given,
+            } => write!(
+                f,
+                "a configuration needs {expected_spins} pseudospins, each +1 or −1 (got {given} entries)"
+            ),
+            KineticsError::InvalidTemperature(t) => {
+                write!(f, "the temperature must be a finite number of kelvin ≥ 0 (got {t})")
+            }
+            KineticsError::InvalidDuration(t) => {
+                write!(f, "the duration must be a finite number of seconds ≥ 0 (got {t})")
+            }
+            KineticsError::InvalidSampleInterval(t) => write!(
+                f,
+                "the sample interval must be a positive finite number of seconds (got {t})"
+            ),
+            KineticsError::TooManySamples { samples } => write!(
+                f,
+                "the time grid would hold {samples} samples, more than {MAX_SAMPLES}; \
+                 use a longer sample interval or a shorter run"
+            ),
+            KineticsError::InvalidField => write!(
+                f,
+                "the field needs a non-zero direction and finite strength and moment"
+            ),
+            KineticsError::MissingField => {
+                write!(f, "a field quench needs a field to switch off; give one")
+            }
+            KineticsError::InvalidProjectionAxis => {
+                write!(f, "the projection axis needs a non-zero finite direction")
+            }
+        }
+    }
+}
+
+impl std::error::Error for KineticsError {}
+
+impl From<GatingError> for KineticsError {
+    fn from(e: GatingError) -> Self {
+        KineticsError::Gating(e)
+    }
+}
+
+/// Class buckets of the rejection-free execution.
+struct Buckets {
+    /// Spins of each rate group.
+    members: Vec<Vec<u32>>,
+    /// Index of each spin inside its bucket.
+    position: Vec<u32>,
+    /// Rate group of each spin.
+    class_of: Vec<u16>,
+    /// Σ_c |members_c| · rate_c (1/s), maintained incrementally and refreshed
+    /// exactly every few thousand events to stop rounding drift.
+    total_rate: f64,
+    events_since_refresh: u32,
+}
+
+/// The kinetic engine (see the module documentation).
+pub struct Kinetics<'a, E: DiscreteFlipEnergy> {
+    lat: &'a Pyrochlore,
+    energy: E,
+    sigma: Vec<i8>,
+    tetrahedron_sums: Vec<i8>,
+    gates: GateClasses,
+    rule: AcceptanceRule,
+    temperature_kelvin: f64,
+    attempt_times: AttemptTimes,
+    /// Flip rate (1/s) of class `energy_class · 4 + gate_class`.
+    class_rate: Vec<f64>,
+    /// `class_rate · τ_min`: acceptance of one attempt-based step.
+    attempt_probability: Vec<f64>,
+    /// Rate group of each class: classes with equal rates share a group, so
+    /// the rejection-free scan runs over the few distinct rates only.
+    class_group: Vec<u16>,
+    /// Rate (1/s) of each group, in descending order.
+    group_rate: Vec<f64>,
+    shortest_attempt_seconds: f64,
+    time_seconds: f64,
+    sublattice_sums: [i64; 4],
+    single_charges: u64,
+    double_charges: u64,
+    rng: SpinRng,
+    attempts: u64,
+    flips: u64,
+    buckets: Option<Buckets>,
+}
+
+impl<'a, E: DiscreteFlipEnergy> Kinetics<'a, E> {
+    /// An engine at `temperature_kelvin` from configuration `sigma`.
+    pub fn new(
+        lat: &'a Pyrochlore,
+        energy: E,
+        sigma: Vec<i8>,
+        rule: AcceptanceRule,
+        temperature_kelvin: f64,
+        attempt_times: AttemptTimes,
+        rng: SpinRng,
+    ) -> Result<Self, KineticsError> {
+        if sigma.len() != lat.spin_count() || sigma.iter().any(|&s| s != 1 && s != -1) {
+            return Err(KineticsError::InvalidConfiguration {
+                expected_spins: lat.spin_count(),
+                given: sigma.len(),
+            });
+        }
+        if !(temperature_kelvin >= 0.0 && temperature_kelvin.is_finite()) {
+            return Err(KineticsError::InvalidTemperature(temperature_kelvin));
+        }
+        attempt_times.validate()?;
+        let tetrahedron_sums: Vec<i8> = (0..lat.tetrahedron_count())
+            .map(|t| crate::hamiltonian::tetrahedron_sum(lat, &sigma, t))
+            .collect();
+        let gates = GateClasses::new(lat, &sigma);
+        let mut sublattice_sums = [0i64; 4];
+        for (i, &s) in sigma.iter().enumerate() {
+            sublattice_sums[i & 3] += s as i64;
+        }
+        let mut engine = Self {
+            lat,
+            energy,
+            sigma,
+            tetrahedron_sums,
+            gates,
+            rule,
+            temperature_kelvin,
+            attempt_times,
+            class_rate: Vec::new(),
+            attempt_probability: Vec::new(),
+            class_group: Vec::new(),
+            group_rate: Vec::new(),
+            shortest_attempt_seconds: 1.0,
+            time_seconds: 0.0,
+            sublattice_sums,
+            single_charges: 0,
+            double_charges: 0,
+            rng,
+            attempts: 0,
+            flips: 0,
+            buckets: None,
+        };
+        engine.count_charges();
+        engine.rebuild_rates();
+        Ok(engine)
+    }
+
+    fn count_charges(&mut self) {
+        let c = crate::metropolis::ChargeCounts::from_tetrahedron_sums(&self.tetrahedron_sums);
+        self.single_charges = c.single;
+        self.double_charges = c.double;
+    }
+
+    /// Recompute the per-class rate tables (after T, rule, times or energetics change).
+    fn rebuild_rates(&mut self) {
+        let gate_rates = self.attempt_times.rates_per_second();
+        let classes = self.energy.energy_class_count() * GATE_CLASS_COUNT;
+        self.class_rate = (0..classes)
+            .map(|c| {
+                let cost = self.energy.energy_class_cost_kelvin(c / GATE_CLASS_COUNT);
+                gate_rates[c % GATE_CLASS_COUNT]
+                    * self.rule.probability(cost, self.temperature_kelvin)
+            })
+            .collect();
+        self.shortest_attempt_seconds = self.attempt_times.shortest_seconds();
+        let tau = self.shortest_attempt_seconds;
+        self.attempt_probability = self.class_rate.iter().map(|r| (r * tau).min(1.0)).collect();
+        // Distinct rates (−0 and +0 alike), descending.
+        let mut rates: Vec<f64> = self.class_rate.iter().map(|&r| r + 0.0).collect();
+        rates.sort_by(|a, b| b.total_cmp(a));
+        rates.dedup();
+        self.class_group = self
+            .class_rate
+            .iter()
+            .map(|&r| rates.iter().position(|&x| x == r + 0.0).unwrap_or(0) as u16)
+            .collect();
+        self.group_rate = rates;
+        if self.buckets.is_some() {
+            // The grouping may have changed: regroup every spin, O(N).
+            self.build_buckets();
+        }
+    }
+
+    /// Change the temperature (rates are rebuilt; the state is kept).
+    pub fn set_temperature(&mut self, temperature_kelvin: f64) -> Result<(), KineticsError> {
+        if !(temperature_kelvin >= 0.0 && temperature_kelvin.is_finite()) {
+            return Err(KineticsError::InvalidTemperature(temperature_kelvin));
+        }
+        self.temperature_kelvin = temperature_kelvin;
+        self.rebuild_rates();
+        Ok(())
+    }
+
+    /// Change the attempt-time table.
+    pub fn set_attempt_times(&mut self, attempt_times: AttemptTimes) -> Result<(), KineticsError> {
+        attempt_times.validate()?;
+        self.attempt_times = attempt_times;
+        self.rebuild_rates();
+        Ok(())
+    }
+
+    /// Replace the energetics (e.g. switch a field off); classes and rates
+    /// are recomputed.
+    pub fn set_energy(&mut self, energy: E) {
+        self.energy = energy;
+        self.buckets = None;
+        self.rebuild_rates();
+    }
+
+    /// The energetics.
+    pub fn energy(&self) -> &E {
+        &self.energy
+    }
+
+    /// Current physical time (s).
+    pub fn time_seconds(&self) -> f64 {
+        self.time_seconds
+    }
+
+    /// Pseudospins.
+    pub fn sigma(&self) -> &[i8] {
+        &self.sigma
+    }
+
+    /// Tetrahedron sums `S_t` (`Q_t = ±S_t/2`).
+    pub fn tetrahedron_sums(&self) -> &[i8] {
+        &self.tetrahedron_sums
+    }
+
+    /// Per-spin gate classes.
+    pub fn gate_classes(&self) -> &GateClasses {
+        &self.gates
+    }
+
+    /// The lattice.
+    pub fn lattice(&self) -> &'a Pyrochlore {
+        self.lat
+    }
+
+    /// Temperature (K).
+    pub fn temperature_kelvin(&self) -> f64 {
+        self.temperature_kelvin
+    }
+
+    /// `M = Σ_i σ_i e_{a(i)}` (units of μ).
+    pub fn magnetisation(&self) -> [f64; 3] {
+        let mut m = [0.0; 3];
+        for (a, &n) in self.sublattice_sums.iter().enumerate() {
+            let e = easy_axis(a);
+            for c in 0..3 {
+                m[c] += n as f64 * e[c];
+            }
+        }
+        m
+    }
+
+    /// Σ_t |Q_t| (a double charge counts twice).
+    pub fn monopole_count(&self) -> u64 {
+        self.single_charges + 2 * self.double_charges
+    }
+
+    /// Tetrahedra with |Q| = 2.
+    pub fn double_charge_count(&self) -> u64 {
+        self.double_charges
+    }
+
+    /// Attempts made by the attempt-based execution so far.
+    pub fn attempt_count(&self) -> u64 {
+        self.attempts
+    }
+
+    /// Flips made so far (both executions).
+    pub fn flip_count(&self) -> u64 {
+        self.flips
+    }
+
+    /// Flip rate (1/s) of `spin` in the current state.
+    pub fn flip_rate_per_second(&self, spin: usize) -> f64 {
+        let view = self.view();
+        let class = self.energy.energy_class(&view, spin) * GATE_CLASS_COUNT
+            + self.gates.class(spin) as usize;
+        self.class_rate[class]
+    }
+
+    fn view(&self) -> SpinView<'_> {
+        SpinView {
+            lattice: self.lat,
+            sigma: &self.sigma,
+            tetrahedron_sums: &self.tetrahedron_sums,
+        }
+    }
+
+    /// Flip `spin` and update every cache; returns its gate class.
+    #[inline(always)]
+    fn apply_flip<O: FlipObserver>(&mut self, spin: usize, observer: &mut O) -> u8 {
+        let lat = self.lat;
+        let down = lat.down_tetrahedra();
+        debug_assert!(spin < self.sigma.len());
+        // SAFETY: `spin < N` (every caller draws it from 0..N or from a
+        // bucket of spins); `spin >> 2 < N/4` and `down[spin] < N/2` index
+        // the tetrahedron sums by construction of the lattice tables.
+        let (s, up_t, down_t) = unsafe {
+            (
+                *self.sigma.get_unchecked(spin),
+                spin >> 2,
+                *down.get_unchecked(spin) as usize,
+            )
+        };
+        unsafe {
+            *self.sigma.get_unchecked_mut(spin) = -s;
+            for t in [up_t, down_t] {
+                let old = *self.tetrahedron_sums.get_unchecked(t);
+                let new = old - 2 * s;
+                *self.tetrahedron_sums.get_unchecked_mut(t) = new;
+                match old.unsigned_abs() {
+                    2 => self.single_charges -= 1,
+                    4 => self.double_charges -= 1,
+                    _ => {}
+                }
+                match new.unsigned_abs() {
+                    2 => self.single_charges += 1,
+                    4 => self.double_charges += 1,
+                    _ => {}
+                }
+            }
+            *self.sublattice_sums.get_unchecked_mut(spin & 3) -= 2 * s as i64;
+        }
+        let gate = self.gates.as_slice()[spin];
+        let view = SpinView {
+            lattice: lat,
+            sigma: &self.sigma,
+            tetrahedron_sums: &self.tetrahedron_sums,
+        };
+        self.energy.after_flip(&view, spin);
+        let gates = self.gates.as_mut_slice();
+        for &j in lat.neighbours(spin) {
+            // SAFETY: neighbour indices are < N and sigma holds ±1 only.
+            unsafe {
+                *gates.get_unchecked_mut(j as usize) =
+                    gating::gate_class_unchecked(lat.neighbours(j as usize), &self.sigma);
+            }
+        }
+        self.flips += 1;
+        observer.on_flip(&FlipEvent {
+            time_seconds: self.time_seconds,
+            spin,
+            gate_class: gate,
+            state: view,
+        });
+        gate
+    }
+
+    /// Advance towards `t_end_seconds` by at most `max_steps` attempts or
+    /// events; returns whether `t_end_seconds` was reached.
+    pub fn advance<O: FlipObserver>(
+        &mut self,
+        t_end_seconds: f64,
+        execution: Execution,
+        max_steps: u64,
+        observer: &mut O,
+    ) -> bool {
+        match execution {
+            Execution::AttemptBased => {
+                self.buckets = None;
+                self.advance_attempts(t_end_seconds, max_steps, observer)
+            }
+            Execution::RejectionFree => {
+                if self.buckets.is_none() {
+                    self.build_buckets();
+                }
+                self.advance_events(t_end_seconds, max_steps, observer)
+            }
+        }
+    }
+
+    fn advance_attempts<O: FlipObserver>(
+        &mut self,
+        t_end: f64,
+        max_steps: u64,
+        observer: &mut O,
+    ) -> bool {
+        let n = self.sigma.len();
+        let dt = self.shortest_attempt_seconds / n as f64;
+        let remaining = (t_end - self.time_seconds) / dt;
+        // NaN (no time left to compare) counts as reached.
+        if remaining.is_nan() || remaining < 1.0 {
+            return true;
+        }
+        // A tiny tolerance so that a grid point exactly k·dt away is reached.
+        let wanted = (remaining * (1.0 + 1e-12)).floor() as u64;
+        let count = wanted.min(max_steps);
+        let n64 = n as u64;
+        let reject_below = ((1u64 << 32) % n64) as u32;
+        let start_time = self.time_seconds;
+        for step in 0..count {
+            let bits = self.rng.next_u64();
+            // Lemire, ACM Trans. Model. Comput. Simul. 29, 3 (2019): exactly
+            // uniform site by multiply-shift with rejection.
+            let mut product = (bits & 0xffff_ffff) * n64;
+            while (product as u32) < reject_below {
+                product = (self.rng.next_u64() >> 32) * n64;
+            }
+            let site = (product >> 32) as usize;
+            let u = (self.rng.next_u64() >> 11) as f64 * (1.0 / (1u64 << 53) as f64);
+            let view = self.view();
+            // SAFETY: site < N = gates.len().
+            let gate = unsafe { *self.gates.as_slice().get_unchecked(site) } as usize;
+            let class = self.energy.energy_class(&view, site) * GATE_CLASS_COUNT + gate;
+            let p = self.attempt_probability[class];
+            if u < p {
+                // Time of this attempt, for observers.
+                self.time_seconds = start_time + (step + 1) as f64 * dt;
+                self.apply_flip(site, observer);
+            }
+        }
+        self.attempts += count;
+        self.time_seconds = start_time + count as f64 * dt;
+        count == wanted
+    }
+
+    fn build_buckets(&mut self) {
+        let groups = self.group_rate.len();
+        let n = self.sigma.len();
+        let mut members: Vec<Vec<u32>> = vec![Vec::new(); groups];
+        let mut position = vec![0u32; n];
+        let mut class_of = vec![0u16; n];
+        {
+            let view = self.view();
+            for spin in 0..n {
+                let class = self.energy.energy_class(&view, spin) * GATE_CLASS_COUNT
+                    + self.gates.class(spin) as usize;
+                let c = self.class_group[class] as usize;
+                position[spin] = members[c].len() as u32;
+                members[c].push(spin as u32);
+                class_of[spin] = c as u16;
+            }
+        }
+        // Head room so that buckets rarely grow (and reallocate) later.
+        for m in &mut members {
+            let extra = (m.len() + 64).min(n - m.len().min(n));
+            m.reserve(extra);
+        }
+        let total_rate = exact_total(&members, &self.group_rate);
+        self.buckets = Some(Buckets {
+            members,
+            position,
+            class_of,
+            total_rate,
+            events_since_refresh: 0,
+        });
+    }
+
+    fn advance_events<O: FlipObserver>(
+        &mut self,
+        t_end: f64,
+        max_steps: u64,
+        observer: &mut O,
+    ) -> bool {
+        let Some(mut b) = self.buckets.take() else {
+            return true;
+        };
+        let mut reached = false;
+        for _ in 0..max_steps {
+            if b.events_since_refresh >= 4096 {
+                b.total_rate = exact_total(&b.members, &self.group_rate);
+                b.events_since_refresh = 0;
+            }
+            let total = b.total_rate;
+            if total.is_nan() || total <= 1e-300 {
+                // Nothing can move: the state is frozen until t_end.
+                self.time_seconds = self.time_seconds.max(t_end);
+                reached = true;
+                break;
+            }
+            // u ∈ (0, 1] so ln u is finite.
+            let u = ((self.rng.next_u64() >> 11) + 1) as f64 * (1.0 / (1u64 << 53) as f64);
+            let dt = -u.ln() / total;
+            if self.time_seconds + dt > t_end {
+                // Memoryless: discarding the partial wait is exact.
+                self.time_seconds = self.time_seconds.max(t_end);
+                reached = true;
+                break;
+            }
+            self.time_seconds += dt;
+            let mut target = self.rng.gen::<f64>() * total;
+            let mut chosen = usize::MAX;
+            let mut last_nonempty = usize::MAX;
+            for (c, (m, &rate)) in b.members.iter().zip(&self.group_rate).enumerate() {
+                let len = m.len();
+                if len == 0 || rate <= 0.0 {
+                    continue;
+                }
+                last_nonempty = c;
+                let w = len as f64 * rate;
+                if target < w {
+                    chosen = c;
+                    break;
+                }
+                target -= w;
+            }
+            if chosen == usize::MAX {
+                // Rounding of the maintained total: fall back to the last
+                // class with weight (exactness is restored at the next refresh).
+                chosen = last_nonempty;
+                if chosen == usize::MAX {
+                    b.total_rate = 0.0;
+                    continue;
+                }
+            }
+            let bucket = &b.members[chosen];
+            let spin = bucket[self.rng.gen_range(0..bucket.len())] as usize;
+            self.apply_flip(spin, observer);
+            // Re-class the flipped spin and its six neighbours.
+            let lat = self.lat;
+            let nb = lat.neighbours(spin);
+            let update = [spin as u32, nb[0], nb[1], nb[2], nb[3], nb[4], nb[5]];
+            let view = SpinView {
+                lattice: lat,
+                sigma: &self.sigma,
+                tetrahedron_sums: &self.tetrahedron_sums,
+            };
+            for &j in &update {
+                let j = j as usize;
+                // SAFETY: j < N = gates.len().
+                let gate = unsafe { *self.gates.as_slice().get_unchecked(j) } as usize;
+                let class = self.energy.energy_class(&view, j) * GATE_CLASS_COUNT + gate;
+                // SAFETY: class < class_group.len() by the DiscreteFlipEnergy contract.
+                debug_assert!(class < self.class_group.len());
+                let new = unsafe { *self.class_group.get_unchecked(class) } as usize;
+                b.move_spin(j, new, &self.group_rate);
+            }
+            b.events_since_refresh += 1;
+        }
+        self.buckets = Some(b);
+        reached
+    }
+
+    /// Record `duration_seconds` of kinetics sampled every
+    /// `sample_interval_seconds` (times relative to the start of the
+    /// recording; the first sample is the current state). Polls `interrupt`
+    /// at least every 2^18 steps and returns the samples so far, marked
+    /// interrupted. Progress counts samples taken out of samples planned
+    /// (proportional to simulated time).
+    #[allow(clippy::too_many_arguments)]
+    pub fn record<O: FlipObserver>(
+        &mut self,
+        duration_seconds: f64,
+        sample_interval_seconds: f64,
+        execution: Execution,
+        projection_axis: [f64; 3],
+        interrupt: &Interrupt,
+        progress: ProgressFn<'_>,
+        observer: &mut O,
+    ) -> Result<Trajectory, KineticsError> {
+        let samples = sample_count(duration_seconds, sample_interval_seconds)?;
+        let axis = unit(projection_axis).ok_or(KineticsError::InvalidProjectionAxis)?;
+        let mut trajectory = Trajectory {
+            execution,
+            temperature_kelvin: self.temperature_kelvin,
+            times_seconds: Vec::with_capacity(samples as usize),
+            magnetisation: Vec::with_capacity(samples as usize),
+            projection_axis: axis,
+            magnetisation_projection: Vec::with_capacity(samples as usize),
+            monopole_count: Vec::with_capacity(samples as usize),
+            double_charge_count: Vec::with_capacity(samples as usize),
+            spin_count: self.sigma.len(),
+            flips: 0,
+            attempts: 0,
+            interrupted: false,
+        };
+        let (flips0, attempts0) = (self.flips, self.attempts);
+        let t0 = self.time_seconds;
+        let report_every = (samples / 200).max(1);
+        let label = format!("kinetics: samples of simulated time ({execution:?})");
+        self.push_sample(&mut trajectory, t0);
+        'grid: for k in 1..samples {
+            let target = t0 + k as f64 * sample_interval_seconds;
+            loop {
+                if interrupt.is_requested() {
+                    trajectory.interrupted = true;
+                    break 'grid;
+                }
+                if self.advance(target, execution, STEPS_PER_POLL, observer) {
+                    break;
+                }
+            }
+            self.push_sample(&mut trajectory, t0);
+            if k % report_every == 0 {
+                progress(&Progress {
+                    label: label.clone(),
+                    done: k + 1,
+                    total: samples,
+                });
+            }
+        }
+        trajectory.flips = self.flips - flips0;
+        trajectory.attempts = self.attempts - attempts0;
+        Ok(trajectory)
+    }
+
+    fn push_sample(&self, trajectory: &mut Trajectory, t0: f64) {
+        let m = self.magnetisation();
+        trajectory.times_seconds.push(self.time_seconds - t0);
+        trajectory
+            .magnetisation_projection
+            .push(crate::lattice::dot(m, trajectory.projection_axis));
+        trajectory.magnetisation.push(m);
+        trajectory.monopole_count.push(self.monopole_count());
+        trajectory.double_charge_count.push(self.double_charges);
+    }
+
+    /// Run for `duration_seconds` without sampling (preparation), polling
+    /// `interrupt`; returns false if interrupted.
+    pub fn run_for(
+        &mut self,
+        duration_seconds: f64,
+        execution: Execution,
+        interrupt: &Interrupt,
+    ) -> Result<bool, KineticsError> {
+        if !(duration_seconds >= 0.0 && duration_seconds.is_finite()) {
+            return Err(KineticsError::InvalidDuration(duration_seconds));
+        }
+        let target = self.time_seconds + duration_seconds;
+        loop {
+            if interrupt.is_requested() {
+                return Ok(false);
+            }
+            if self.advance(target, execution, STEPS_PER_POLL, &mut ()) {
+                return Ok(true);
+            }
+        }
+    }
+}
+
+impl Buckets {
+    #[inline(always)]
+    fn move_spin(&mut self, spin: usize, new: usize, rate: &[f64]) {
+        // SAFETY: spin < N (= position.len() = class_of.len()); classes are
+        // < rate.len() = members.len() by the DiscreteFlipEnergy contract,
+        // checked in debug builds.
+        debug_assert!(new < self.members.len());
+        let old = unsafe { *self.class_of.get_unchecked(spin) } as usize;
+        if old == new {
+            return;
+        }
+        unsafe {
+            let p = *self.position.get_unchecked(spin) as usize;
+            let bucket = self.members.get_unchecked_mut(old);
+            let last = bucket.pop().unwrap_or(spin as u32);
+            if last as usize != spin {
+                *bucket.get_unchecked_mut(p) = last;
+                *self.position.get_unchecked_mut(last as usize) = p as u32;
+            }
+            let target = self.members.get_unchecked_mut(new);
+            *self.position.get_unchecked_mut(spin) = target.len() as u32;
+            target.push(spin as u32);
+            *self.class_of.get_unchecked_mut(spin) = new as u16;
+            self.total_rate += *rate.get_unchecked(new) - *rate.get_unchecked(old);
+        }
+    }
+}
+
+fn exact_total(members: &[Vec<u32>], rate: &[f64]) -> f64 {
+    members
+        .iter()
+        .zip(rate)
+        .map(|(m, r)| m.len() as f64 * r)
+        .sum()
+}
+
+fn sample_count(duration_seconds: f64, interval_seconds: f64) -> Result<u64, KineticsError> {
+    if !(duration_seconds >= 0.0 && duration_seconds.is_finite()) {
+        return Err(KineticsError::InvalidDuration(duration_seconds));
+    }
+    if !(interval_seconds > 0.0 && interval_seconds.is_finite()) {
+        return Err(KineticsError::InvalidSampleInterval(interval_seconds));
+    }
+    let steps = (duration_seconds / interval_seconds * (1.0 + 1e-12)).floor();
+    if steps + 1.0 > MAX_SAMPLES as f64 {
+        return Err(KineticsError::TooManySamples {
+            samples: (steps + 1.0).min(u64::MAX as f64) as u64,
+        });
+    }
+    Ok(steps as u64 + 1)
+}
+
+/// Observables on a uniform physical-time grid.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct Trajectory {
+    /// Execution used.
+    pub execution: Execution,
+    /// Temperature during the recording (K).
+    pub temperature_kelvin: f64,
+    /// Sample times (s) from the start of the recording.
+    pub times_seconds: Vec<f64>,
+    /// `M = Σ σ_i e_a` (units of μ) per sample.
+    pub magnetisation: Vec<[f64; 3]>,
+    /// Unit axis of the projection.
+    pub projection_axis: [f64; 3],
+    /// `M·n̂` (units of μ) per sample.
+    pub magnetisation_projection: Vec<f64>,
+    /// Σ_t |Q_t| per sample.
+    pub monopole_count: Vec<u64>,
+    /// Tetrahedra with |Q| = 2 per sample.
+    pub double_charge_count: Vec<u64>,
+    /// N.
+    pub spin_count: usize,
+    /// Flips during the recording.
+    pub flips: u64,
+    /// Attempts during the recording (attempt-based execution only).
+    pub attempts: u64,
+    /// Stopped early on interrupt (the samples so far are kept).
+    pub interrupted: bool,
+}
+
+/// What is done before the recording starts at t = 0.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub enum Protocol {
+    /// Record at the run temperature, with the run's field (if any) on.
+    Evolve,
+    /// Evolve `preparation_seconds` with the field on, switch it off at
+    /// t = 0 and record the decay.
+    FieldQuench {
+        /// Time in the field before the switch (s).
+        preparation_seconds: f64,
+    },
+    /// Evolve `preparation_seconds` at `initial_temperature_kelvin`, step
+    /// to the run temperature at t = 0 and record.
+    TemperatureStep {
+        /// Temperature before the step (K).
+        initial_temperature_kelvin: f64,
+        /// Time at the initial temperature (s).
+        preparation_seconds: f64,
+    },
+}
+
+/// A complete kinetics run for the nearest-neighbour model.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct KineticsSettings {
+    /// L.
+    pub cells_per_side: usize,
+    /// Nearest-neighbour model.
+    pub model: NearestNeighbourIce,
+    /// Optional uniform field (on throughout for `Evolve`, switched off at
+    /// t = 0 for `FieldQuench`).
+    pub field: Option<ZeemanField>,
+    /// Temperature of the recording (K).
+    pub temperature_kelvin: f64,
+    /// Acceptance rule.
+    pub rule: AcceptanceRule,
+    /// Attempt time per gate class.
+    pub attempt_times: AttemptTimes,
+    /// Execution.
+    pub execution: Execution,
+    /// Protocol.
+    pub protocol: Protocol,
+    /// Initial configuration.
+    pub start: Start,
+    /// Equilibrium Metropolis sweeps (zero field) at the starting
+    /// temperature before the protocol.
+    pub equilibration_sweeps: u64,
+    /// Length of the recording (s).
+    pub duration_seconds: f64,
+    /// Grid spacing (s).
+    pub sample_interval_seconds: f64,
+    /// Projection axis of M (default: the field direction, else [0, 0, 1]).
+    pub projection_axis: Option<[f64; 3]>,
+    /// Seed.
+    pub seed: u64,
+}
+
+/// Settings and trajectory of a finished (or interrupted) run.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct KineticsResult {
+    /// What was asked.
+    pub settings: KineticsSettings,
+    /// What was recorded.
+    pub trajectory: Trajectory,
+}
+
+/// Run a kinetics protocol (validates everything first).
+pub fn run_kinetics(
+    settings: &KineticsSettings,
+    interrupt: &Interrupt,
+    progress: ProgressFn<'_>,
+) -> Result<KineticsResult, KineticsError> {
+    let lat = Pyrochlore::new(settings.cells_per_side).map_err(KineticsError::Lattice)?;
+    sample_count(settings.duration_seconds, settings.sample_interval_seconds)?;
+    let t = settings.temperature_kelvin;
+    if !(t >= 0.0 && t.is_finite()) {
+        return Err(KineticsError::InvalidTemperature(t));
+    }
+    let with_field = NearestNeighbourFlipEnergy::new(&settings.model, settings.field.as_ref())
+        .ok_or(KineticsError::InvalidField)?;
+    let zero_field = NearestNeighbourFlipEnergy::new(&settings.model, None)
+        .ok_or(KineticsError::InvalidField)?;
+    let axis = match (settings.projection_axis, &settings.field) {
+        (Some(a), _) => a,
+        (None, Some(f)) => f.unit_direction().ok_or(KineticsError::InvalidField)?,
+        (None, None) => [0.0, 0.0, 1.0],
+    };
+    unit(axis).ok_or(KineticsError::InvalidProjectionAxis)?;
+    let (start_temperature, preparation) = match &settings.protocol {
+        Protocol::Evolve => (t, 0.0),
+        Protocol::FieldQuench {
+            preparation_seconds,
+        } => {
+            if settings.field.is_none() {
+                return Err(KineticsError::MissingField);
+            }
+            (t, *preparation_seconds)
+        }
+        Protocol::TemperatureStep {
+            initial_temperature_kelvin,
+            preparation_seconds,
+        } => (*initial_temperature_kelvin, *preparation_seconds),
+    };
+    if !(start_temperature >= 0.0 && start_temperature.is_finite()) {
+        return Err(KineticsError::InvalidTemperature(start_temperature));
+    }
+    if !(preparation >= 0.0 && preparation.is_finite()) {
+        return Err(KineticsError::InvalidDuration(preparation));
+    }
+    let streams = RngStreams::new(settings.seed);
+    let mut start_rng = streams.stream(0);
+    let mut sigma = initial_configuration(&lat, settings.start, &mut start_rng);
+    let mut interrupted = false;
+    if settings.equilibration_sweeps > 0 {
+        let mut eq = NearestNeighbourMetropolis::from_configuration(
+            &lat,
+            &settings.model,
+            start_temperature,
+            sigma,
+            streams.stream(1),
+        )
+        .expect("initial_configuration has one ±1 entry per spin");
+        for k in 0..settings.equilibration_sweeps {
+            if k % 64 == 0 && interrupt.is_requested() {
+                interrupted = true;
+                break;
+            }
+            eq.sweep();
+        }
+        sigma = eq.sigma().to_vec();
+    }
+    let quench = matches!(settings.protocol, Protocol::FieldQuench { .. });
+    let mut engine = Kinetics::new(
+        &lat,
+        with_field,
+        sigma,
+        settings.rule,
+        start_temperature,
+        settings.attempt_times.clone(),
+        streams.stream(2),
+    )?;
+    if !interrupted && preparation > 0.0 {
+        interrupted = !engine.run_for(preparation, settings.execution, interrupt)?;
+    }
+    if quench {
+        engine.set_energy(zero_field);
+    }
+    engine.set_temperature(t)?;
+    engine.time_seconds = 0.0;
+    let mut trajectory = if interrupted {
+        let mut tr = engine.record(
+            0.0,
+            settings.sample_interval_seconds,
+            settings.execution,
+            axis,
+            &Interrupt::new(),
+            progress,
+            &mut (),
+        )?;
+        tr.interrupted = true;
+        tr
+    } else {
+        engine.record(
+            settings.duration_seconds,
+            settings.sample_interval_seconds,
+            settings.execution,
+            axis,
+            interrupt,
+            progress,
+            &mut (),
+        )?
+    };
+    trajectory.temperature_kelvin = t;
+    Ok(KineticsResult {
+        settings: settings.clone(),
+        trajectory,
+    })
+}
+
+/// Normalised autocorrelation `⟨M(0)·M(t)⟩/⟨M·M⟩` of the magnetisation
+/// vector (mean removed per component) over all time origins, for lags
+/// `0..=max_lag` samples. A plain O(n·lags) estimator used by the tests and
+/// monopole statistics here; FFT-based estimators live in the spectra module.
+pub fn magnetisation_autocorrelation(trajectory: &Trajectory, max_lag: usize) -> Vec<f64> {
+    let m = &trajectory.magnetisation;
+    let n = m.len();
+    if n == 0 {
+        return Vec::new();
+    }
+    let mut mean = [0.0; 3];
+    for v in m {
+        for c in 0..3 {
+            mean[c] += v[c] / n as f64;
+        }
+    }
+    let centred: Vec<[f64; 3]> = m
+        .iter()
+        .map(|v| [v[0] - mean[0], v[1] - mean[1], v[2] - mean[2]])
+        .collect();
+    let lag_sum = |lag: usize| -> f64 {
+        centred[..n - lag]
+            .iter()
+            .zip(&centred[lag..])
+            .map(|(a, b)| crate::lattice::dot(*a, *b))
+            .sum::<f64>()
+            / (n - lag) as f64
+    };
+    let c0 = lag_sum(0);
+    if c0 <= 0.0 {
+        return vec![1.0; max_lag.min(n - 1) + 1];
+    }
+    (0..=max_lag.min(n - 1)).map(|k| lag_sum(k) / c0).collect()
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::control::ignore_progress;
+    use crate::observe::integrated_autocorrelation_time;
+
+    fn free_spin_engine(
+        lat: &Pyrochlore,
+        rule: AcceptanceRule,
+        seed: u64,
+    ) -> Kinetics<'_, NearestNeighbourFlipEnergy> {
+        let energy = NearestNeighbourFlipEnergy::new(&NearestNeighbourIce::new(0.0), None).unwrap();
+        let mut rng = RngStreams::new(seed).stream(0);
+        let sigma = initial_configuration(lat, Start::Random, &mut rng);
+        Kinetics::new(
+            lat,
+            energy,
+            sigma,
+            rule,
+            1.0,
+            AttemptTimes::uniform(1e-3).unwrap(),
+            rng,
+        )
+        .unwrap()
+    }
+
+    #[test]
+    fn acceptance_rules() {
+        // Metropolis min(1, e^{−x}); Glauber 1/(1+e^{x}) (physics-reference §5).
+        let m = AcceptanceRule::Metropolis;
+        let g = AcceptanceRule::Glauber;
+        assert_eq!(m.probability(-1.0, 1.0), 1.0);
+        assert!((m.probability(2.0, 1.0) - (-2.0f64).exp()).abs() < 1e-15);
+        assert!((g.probability(0.0, 1.0) - 0.5).abs() < 1e-15);
+        assert!((g.probability(2.0, 1.0) - 1.0 / (1.0 + 2.0f64.exp())).abs() < 1e-15);
+        assert!((g.probability(-2.0, 1.0) - 1.0 / (1.0 + (-2.0f64).exp())).abs() < 1e-15);
+        assert_eq!(g.probability(1e6, 1.0), 0.0);
+        assert_eq!(m.probability(1.0, 0.0), 0.0);
+        assert_eq!(g.probability(0.0, 0.0), 0.5);
+    }
+
+    #[test]
+    fn energy_classes_reproduce_flip_costs_with_a_field() {
+        let lat = Pyrochlore::new(2).unwrap();
+        let model = NearestNeighbourIce::new(1.3);
+        let field = ZeemanField {
+            field_tesla: 0.7,
+            direction: [1.0, 1.0, 0.0],
+            moment_bohr_magnetons: 10.0,
+        };
+        let energy = NearestNeighbourFlipEnergy::new(&model, Some(&field)).unwrap();
+        let mut rng = RngStreams::new(3).stream(0);
+        let sigma = initial_configuration(&lat, Start::Random, &mut rng);
+        let sums: Vec<i8> = (0..lat.tetrahedron_count())
+            .map(|t| crate::hamiltonian::tetrahedron_sum(&lat, &sigma, t))
+            .collect();
+        let view = SpinView {
+            lattice: &lat,
+            sigma: &sigma,
+            tetrahedron_sums: &sums,
+        };
+        let n = field.unit_direction().unwrap();
+        let mu_b = 10.0 * BOHR_MAGNETON_KELVIN_PER_TESLA * 0.7;
+        let zeeman = |s: &[i8]| -> f64 {
+            (0..s.len())
+                .map(|i| -mu_b * s[i] as f64 * crate::lattice::dot(easy_axis(i % 4), n))
+                .sum()
+        };
+        for spin in 0..lat.spin_count() {
+            let class = energy.energy_class(&view, spin);
+            assert!(class < energy.energy_class_count());
+            let mut flipped = sigma.clone();
+            flipped[spin] = -flipped[spin];
+            // Direct energy difference from the Hamiltonian (physics-reference §2).
+            let direct = model.energy_kelvin(&lat, &flipped) + zeeman(&flipped)
+                - model.energy_kelvin(&lat, &sigma)
+                - zeeman(&sigma);
+            assert!((energy.energy_class_cost_kelvin(class) - direct).abs() < 1e-9);
+        }
+    }
+
+    /// Normalised M autocorrelation at a few lags against e^{−t/τ}.
+    fn check_free_spin_decay(rule: AcceptanceRule, execution: Execution, tau_over_tau0: f64) {
+        // Free spins (J = 0, B = 0): ⟨σ(0)σ(t)⟩ = e^{−2 A t/τ0} with A the
+        // acceptance of a ΔE = 0 move: 1 for Metropolis, ½ for Glauber, so
+        // e^{−2t/τ0} and e^{−t/τ0} (physics-reference §9, derived). M is a sum
+        // of independent spins, so its normalised autocorrelation is the same.
+        let lat = Pyrochlore::new(2).unwrap();
+        let mut engine = free_spin_engine(&lat, rule, 11);
+        let tau0 = 1e-3;
+        let interval = 0.05 * tau0;
+        let tr = engine
+            .record(
+                20_000.0 * tau0,
+                interval,
+                execution,
+                [0.0, 0.0, 1.0],
+                &Interrupt::new(),
+                &ignore_progress,
+                &mut (),
+            )
+            .unwrap();
+        let c = magnetisation_autocorrelation(&tr, 40);
+        // Bartlett's variance of an exponential autocorrelation estimate with
+        // 4·10⁵ samples is σ ≈ 0.003 per lag (common practice); 0.02 ≈ 6σ.
+        for lag in [5usize, 10, 20, 40] {
+            let t = lag as f64 * interval;
+            let expected = (-t / (tau_over_tau0 * tau0)).exp();
+            assert!(
+                (c[lag] - expected).abs() < 0.02,
+                "{rule:?} {execution:?} lag {lag}: C = {} expected {expected}",
+                c[lag]
+            );
+        }
+    }
+
+    #[test]
+    fn free_spins_metropolis_decay_as_exp_minus_2t_over_tau0() {
+        for execution in [Execution::AttemptBased, Execution::RejectionFree] {
+            check_free_spin_decay(AcceptanceRule::Metropolis, execution, 0.5);
+        }
+    }
+
+    #[test]
+    fn free_spins_glauber_decay_as_exp_minus_t_over_tau0() {
+        for execution in [Execution::AttemptBased, Execution::RejectionFree] {
+            check_free_spin_decay(AcceptanceRule::Glauber, execution, 1.0);
+        }
+    }
+
+    #[test]
+    fn incremental_state_matches_recomputation_in_both_executions() {
+        let lat = Pyrochlore::new(2).unwrap();
+        let model = NearestNeighbourIce::new(1.1);
+        let field = ZeemanField {
+            field_tesla: 0.2,
+            direction: [1.0, 1.0, 1.0],
+            moment_bohr_magnetons: 10.0,
+        };
+        let energy = NearestNeighbourFlipEnergy::new(&model, Some(&field)).unwrap();
+        let mut rng = RngStreams::new(5).stream(0);
+        let sigma = initial_configuration(&lat, Start::Random, &mut rng);
+        let mut engine = Kinetics::new(
+            &lat,
+            energy,
+            sigma,
+            AcceptanceRule::Glauber,
+            1.0,
+            AttemptTimes::bimodal(1.0, gating::SlowGate::Ratio(5.0)).unwrap(),
+            rng,
+        )
+        .unwrap();
+        for (k, execution) in [
+            Execution::AttemptBased,
+            Execution::RejectionFree,
+            Execution::AttemptBased,
+            Execution::RejectionFree,
+        ]
+        .into_iter()
+        .enumerate()
+        {
+            engine.advance((k + 1) as f64 * 20.0, execution, u64::MAX, &mut ());
+            assert!((engine.time_seconds() - (k + 1) as f64 * 20.0).abs() < 1e-6);
+            let s = engine.sigma().to_vec();
+            assert_eq!(engine.gate_classes(), &GateClasses::new(&lat, &s));
+            let sums: Vec<i8> = (0..lat.tetrahedron_count())
+                .map(|t| crate::hamiltonian::tetrahedron_sum(&lat, &s, t))
+                .collect();
+            assert_eq!(engine.tetrahedron_sums(), &sums[..]);
+            let m = crate::metropolis::magnetisation(&s);
+            let em = engine.magnetisation();
+            for c in 0..3 {
+                assert!((m[c] - em[c]).abs() < 1e-9);
+            }
+            let counts = crate::metropolis::ChargeCounts::from_tetrahedron_sums(&sums);
+            assert_eq!(engine.monopole_count(), counts.total_charge_magnitude());
+        }
+        assert!(engine.flip_count() > 100, "{}", engine.flip_count());
+        if let Some(b) = &engine.buckets {
+            let s = engine.sigma().to_vec();
+            let sums = engine.tetrahedron_sums().to_vec();
+            let view = SpinView {
+                lattice: &lat,
+                sigma: &s,
+                tetrahedron_sums: &sums,
+            };
+            for spin in 0..lat.spin_count() {
+                let true_class = engine.energy().energy_class(&view, spin) * GATE_CLASS_COUNT
+                    + engine.gate_classes().class(spin) as usize;
+                assert_eq!(b.class_of[spin], engine.class_group[true_class]);
+            }
+            for (c, m) in b.members.iter().enumerate() {
+                for (p, &s) in m.iter().enumerate() {
+                    assert_eq!(b.class_of[s as usize] as usize, c);
+                    assert_eq!(b.position[s as usize] as usize, p);
+                }
+            }
+            let exact = exact_total(&b.members, &engine.group_rate);
+            assert!((b.total_rate - exact).abs() <= 1e-9 * exact);
+        } else {
+            panic!("the last execution was rejection-free, so buckets exist");
+        }
+    }
+
+    /// τ_int of M·ẑ (units of the sample interval) for independent replicas.
+    fn relaxation_times(temperature_kelvin: f64, execution: Execution) -> (f64, f64) {
+        relaxation_times_with(temperature_kelvin, execution, 24, 0)
+    }
+
+    fn relaxation_times_with(
+        temperature_kelvin: f64,
+        execution: Execution,
+        replicas: u64,
+        seed_offset: u64,
+    ) -> (f64, f64) {
+        let lat = Pyrochlore::new(2).unwrap();
+        let model = NearestNeighbourIce::new(1.1);
+        let tau0 = 1.0;
+        let mut taus = Vec::new();
+        for r in 0..replicas {
+            let mut eq = NearestNeighbourMetropolis::new(
+                &lat,
+                &model,
+                temperature_kelvin,
+                Start::Random,
+                RngStreams::new(100 + r + seed_offset).stream(0),
+            );
+            for _ in 0..500 {
+                eq.sweep();
+            }
+            let mut engine = Kinetics::new(
+                &lat,
+                NearestNeighbourFlipEnergy::new(&model, None).unwrap(),
+                eq.sigma().to_vec(),
+                AcceptanceRule::Metropolis,
+                temperature_kelvin,
+                AttemptTimes::uniform(tau0).unwrap(),
+                RngStreams::new(200 + r + seed_offset).stream(match execution {
+                    Execution::AttemptBased => 1,
+                    Execution::RejectionFree => 2,
+                }),
+            )
+            .unwrap();
+            let tr = engine
+                .record(
+                    4000.0 * tau0,
+                    0.5 * tau0,
+                    execution,
+                    [0.0, 0.0, 1.0],
+                    &Interrupt::new(),
+                    &ignore_progress,
+                    &mut (),
+                )
+                .unwrap();
+            let tau = integrated_autocorrelation_time(&tr.magnetisation_projection).unwrap();
+            taus.push(tau.tau_samples * 0.5 * tau0);
+        }
+        let mean = taus.iter().sum::<f64>() / replicas as f64;
+        let var = taus.iter().map(|t| (t - mean).powi(2)).sum::<f64>() / (replicas - 1) as f64;
+        (mean, (var / replicas as f64).sqrt())
+    }
+
+    #[test]
+    fn rejection_free_and_attempt_based_relax_alike_at_three_temperatures() {
+        // Both executions sample the same Poisson process (Bortz, Kalos &
+        // Lebowitz, J. Comput. Phys. 17, 10 (1975)), so the integrated
+        // autocorrelation time of M must agree within 2σ (issue 4).
+        for t in [0.8, 1.2, 2.0] {
+            let (a, sa) = relaxation_times(t, Execution::AttemptBased);
+            let (b, sb) = relaxation_times(t, Execution::RejectionFree);
+            let sigma = (sa * sa + sb * sb).sqrt();
+            assert!(
+                (a - b).abs() < 2.0 * sigma,
+                "T = {t}: attempt {a} ± {sa}, rejection-free {b} ± {sb}"
+            );
+            assert!(
+                sigma < 0.2 * a,
+                "errors too large to mean anything: {sigma} vs {a}"
+            );
+        }
+    }
+
+    #[test]
+    fn field_quench_magnetisation_decays_and_interrupt_keeps_samples() {
+        let settings = KineticsSettings {
+            cells_per_side: 2,
+            model: NearestNeighbourIce::new(1.1),
+            field: Some(ZeemanField {
+                field_tesla: 1.0,
+                direction: [0.0, 0.0, 1.0],
+                moment_bohr_magnetons: 10.0,
+            }),
+            temperature_kelvin: 1.5,
+            rule: AcceptanceRule::Metropolis,
+            attempt_times: AttemptTimes::uniform(1e-3).unwrap(),
+            execution: Execution::RejectionFree,
+            protocol: Protocol::FieldQuench {
+                preparation_seconds: 0.2,
+            },
+            start: Start::Random,
+            equilibration_sweeps: 0,
+            duration_seconds: 0.5,
+            sample_interval_seconds: 1e-3,
+            projection_axis: None,
+            seed: 9,
+        };
+        let result = run_kinetics(&settings, &Interrupt::new(), &ignore_progress).unwrap();
+        let m = &result.trajectory.magnetisation_projection;
+        assert_eq!(m.len(), 501);
+        // In 1 T along [001] each spin gains μB/√3 ≈ 3.9 K by pointing along
+        // the field, so M·ẑ starts near saturation N/√3 (derived) and decays
+        // to ≈ 0 once the field is off.
+        let saturation = 128.0 / 3f64.sqrt();
+        assert!(m[0] > 0.5 * saturation, "M(0) = {}", m[0]);
+        let tail: f64 = m[400..].iter().sum::<f64>() / 101.0;
+        assert!(tail.abs() < 0.15 * saturation, "tail {tail}");
+        assert!(result.trajectory.times_seconds[500] - 0.5 < 1e-9);
+        // Round trip through serde (exchanged value).
+        let json = serde_json::to_string(&result).unwrap();
+        let back: KineticsResult = serde_json::from_str(&json).unwrap();
+        assert_eq!(back.trajectory.times_seconds.len(), 501);
+
+        let interrupt = Interrupt::new();
+        interrupt.request();
+        let stopped = run_kinetics(&settings, &interrupt, &ignore_progress).unwrap();
+        assert!(stopped.trajectory.interrupted);
+        assert_eq!(stopped.trajectory.times_seconds.len(), 1);
+    }
+
+    #[test]
+    fn temperature_step_and_bad_input() {
+        let mut settings = KineticsSettings {
+            cells_per_side: 2,
+            model: NearestNeighbourIce::new(1.1),
+            field: None,
+            temperature_kelvin: 0.6,
+            rule: AcceptanceRule::Glauber,
+            attempt_times: AttemptTimes::uniform(1e-3).unwrap(),
+            execution: Execution::AttemptBased,
+            protocol: Protocol::TemperatureStep {
+                initial_temperature_kelvin: 10.0,
+                preparation_seconds: 0.05,
+            },
+            start: Start::Random,
+            equilibration_sweeps: 10,
+            duration_seconds: 2.0,
+            sample_interval_seconds: 0.01,
+            projection_axis: None,
+            seed: 2,
+        };
+        let tr = run_kinetics(&settings, &Interrupt::new(), &ignore_progress)
+            .unwrap()
+            .trajectory;
+        // After a step from 10 K to 0.6 K the charge density falls (monopoles
+        // annihilate; e^{−4J/T} ≈ 6·10⁻⁴ per tetrahedron at the end, derived
+        // from H = 2J ΣQ²).
+        let first = tr.monopole_count[0] as f64;
+        let last = *tr.monopole_count.last().unwrap() as f64;
+        assert!(first > 20.0 && last < 0.5 * first, "{first} → {last}");
+        settings.sample_interval_seconds = 0.0;
+        assert!(matches!(
+            run_kinetics(&settings, &Interrupt::new(), &ignore_progress),
+            Err(KineticsError::InvalidSampleInterval(_))
+        ));
+        settings.sample_interval_seconds = 1e-12;
+        assert!(matches!(
+            run_kinetics(&settings, &Interrupt::new(), &ignore_progress),
+            Err(KineticsError::TooManySamples { .. })
+        ));
+        settings.sample_interval_seconds = 0.01;
+        settings.protocol = Protocol::FieldQuench {
+            preparation_seconds: 1.0,
+        };
+        let err = run_kinetics(&settings, &Interrupt::new(), &ignore_progress).unwrap_err();
+        assert_eq!(err, KineticsError::MissingField);
+        assert!(err.to_string().contains("field"));
+        settings.temperature_kelvin = f64::NAN;
+        assert!(run_kinetics(&settings, &Interrupt::new(), &ignore_progress).is_err());
+    }
+}
