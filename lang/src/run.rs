@@ -1,0 +1,728 @@
+//! Execution of a plan against the session: stdlib calls, workspace updates, outputs.
+//! Every step commits its result to the workspace before the next one runs, so an error
+//! or an interrupt keeps everything computed before it.
+
+use std::panic::{catch_unwind, AssertUnwindSafe};
+use std::sync::Mutex;
+use std::time::{Duration, Instant};
+
+use icefield_stdlib::control::{Interrupt, Progress};
+use icefield_stdlib::figure::{render_svg, Axis, AxisScale, LinePlot, Series, SeriesStyle};
+use icefield_stdlib::scan::{run_scan, ScanPoint, ScanResult};
+
+use crate::ast::Span;
+use crate::check::{ColumnSpec, PlotSpec, Scale, ShowTarget, Style};
+use crate::diagnostic::{CellError, ErrorKind, Problem};
+use crate::display::{self, header};
+use crate::measures::{Measure, MEASURES, TEMPERATURE_COLUMN, TEMPERATURE_UNIT};
+use crate::plan::{Plan, ScanStep, Step};
+use crate::script::Script;
+use crate::units::format_number;
+use crate::workspace::{Column, Figure, FigureSeries, Provenance, Table, Value, Workspace};
+use crate::Output;
+
+/// Progress updates are sent at most this often (a few per second).
+pub const PROGRESS_INTERVAL: Duration = Duration::from_millis(250);
+
+pub struct Runner<'a> {
+    pub workspace: &'a mut Workspace,
+    pub script: &'a mut Script,
+    pub source: &'a str,
+    pub cell: u64,
+    pub interrupt: &'a Interrupt,
+}
+
+fn error_at(source: &str, kind: ErrorKind, span: Span, message: impl Into<String>) -> CellError {
+    CellError::from_problems(source, &[Problem::new(kind, span, message)])
+}
+
+impl Runner<'_> {
+    pub fn run(&mut self, steps: Vec<Step>, emit: &mut dyn FnMut(Output)) -> Result<(), CellError> {
+        for step in steps {
+            if self.interrupt.is_requested() {
+                return Err(error_at(
+                    self.source,
+                    ErrorKind::Interrupted,
+                    step.keyword,
+                    "interrupted before this statement ran; the results above are kept",
+                ));
+            }
+            self.step(step, emit)?;
+        }
+        Ok(())
+    }
+
+    fn step(&mut self, step: Step, emit: &mut dyn FnMut(Output)) -> Result<(), CellError> {
+        match step.plan {
+            // The checker already refused sizes that do not fit in memory.
+            Plan::SetLattice(lattice) => self.workspace.model.lattice = Some(lattice),
+            Plan::SetCouplings(couplings) => self.workspace.model.couplings = Some(couplings),
+            Plan::SetSeed(seed) => self.workspace.model.seed = Some(seed),
+            Plan::SetMeasures(measures) => self.workspace.model.measures = Some(measures),
+            Plan::Scan(scan) => self.scan(&scan, step.keyword, emit)?,
+            Plan::Table { name, columns } => match self.workspace.table(&name) {
+                Some(table) => emit(Output::Display(display::table(table, columns.as_deref()))),
+                None => {
+                    return Err(error_at(
+                        self.source,
+                        ErrorKind::Name,
+                        step.span,
+                        format!("no table `{name}`"),
+                    ))
+                }
+            },
+            Plan::Show(target) => self.show(&target, step.span, emit)?,
+            Plan::Plot(plot) => self.plot(&plot, step.span, emit)?,
+            Plan::Rhai { body, body_span } => {
+                let tables: Vec<Table> = self
+                    .workspace
+                    .values
+                    .iter()
+                    .filter_map(|(_, v)| match v {
+                        Value::Table(t) => Some(t.clone()),
+                        _ => None,
+                    })
+                    .collect();
+                let refs: Vec<&Table> = tables.iter().collect();
+                let result = self.script.run_block(&body, &refs);
+                self.flush_prints(emit);
+                if let Err(failure) = result {
+                    return Err(CellError::from_problems(
+                        self.source,
+                        &[failure.into_problem(body_span, &body)],
+                    ));
+                }
+            }
+            Plan::Column(column) => self.column(&column, emit)?,
+            Plan::Export { name, path } => self.export(&name, &path, step.span, emit)?,
+        }
+        Ok(())
+    }
+
+    fn flush_prints(&self, emit: &mut dyn FnMut(Output)) {
+        let lines = self.script.take_printed();
+        if !lines.is_empty() {
+            let mut text = lines.join("\n");
+            text.push('\n');
+            emit(Output::Stream { text });
+        }
+    }
+
+    fn scan(
+        &mut self,
+        scan: &ScanStep,
+        keyword: Span,
+        emit: &mut dyn FnMut(Output),
+    ) -> Result<(), CellError> {
+        let started = Instant::now();
+        let result = run_with_progress(scan, self.interrupt, emit);
+        let result = match result {
+            Ok(result) => result,
+            Err(message) => {
+                return Err(error_at(self.source, ErrorKind::Runtime, keyword, message));
+            }
+        };
+        let table = scan_table(scan, &result, self.cell);
+        let kept = table.row_count();
+        let requested = scan.settings.temperatures_kelvin.len();
+        self.workspace
+            .insert(&scan.target, Value::Table(table.clone()));
+        if result.interrupted {
+            emit(Output::Display(display::table(&table, None)));
+            return Err(error_at(
+                self.source,
+                ErrorKind::Interrupted,
+                keyword,
+                format!(
+                    "interrupted: kept {kept} of {requested} temperatures in `{}`",
+                    scan.target
+                ),
+            ));
+        }
+        if scan.summary {
+            emit(Output::Stream {
+                text: summary(scan, &table, started.elapsed()),
+            });
+        }
+        Ok(())
+    }
+
+    fn show(
+        &mut self,
+        target: &ShowTarget,
+        span: Span,
+        emit: &mut dyn FnMut(Output),
+    ) -> Result<(), CellError> {
+        let text = match target {
+            ShowTarget::Model => describe_model(self.workspace),
+            ShowTarget::Measures => {
+                let active = self
+                    .workspace
+                    .model
+                    .measures
+                    .clone()
+                    .unwrap_or_else(Measure::all);
+                let mut text = String::from("measures recorded by the next scan:\n");
+                for m in active {
+                    text.push_str(&format!("  {}\n", header(m.name(), m.unit())));
+                }
+                text
+            }
+            ShowTarget::Workspace => describe_workspace(self.workspace),
+            ShowTarget::Value(name) => match self.workspace.get(name) {
+                Some(Value::Figure(figure)) => {
+                    emit(Output::Display(display::figure(figure)));
+                    return Ok(());
+                }
+                Some(Value::Table(table)) => {
+                    emit(Output::Display(display::table(table, None)));
+                    return Ok(());
+                }
+                None => {
+                    return Err(error_at(
+                        self.source,
+                        ErrorKind::Name,
+                        span,
+                        format!("no value `{name}`"),
+                    ))
+                }
+            },
+        };
+        emit(Output::Stream { text });
+        Ok(())
+    }
+
+    fn plot(
+        &mut self,
+        plot: &PlotSpec,
+        span: Span,
+        emit: &mut dyn FnMut(Output),
+    ) -> Result<(), CellError> {
+        let mut series = Vec::new();
+        let mut x_unit = String::new();
+        let mut y_unit = String::new();
+        let mut y_names: Vec<String> = Vec::new();
+        for (table_name, column_name) in &plot.series {
+            let table = self.workspace.table(table_name);
+            let (Some(x), Some(y)) = (
+                table.and_then(|t| t.column(&plot.x_column)),
+                table.and_then(|t| t.column(column_name)),
+            ) else {
+                return Err(error_at(
+                    self.source,
+                    ErrorKind::Name,
+                    span,
+                    format!(
+                        "`{table_name}` has no columns `{}` and `{column_name}`",
+                        plot.x_column
+                    ),
+                ));
+            };
+            x_unit = x.unit.clone();
+            y_unit = y.unit.clone();
+            if !y_names.contains(column_name) {
+                y_names.push(column_name.clone());
+            }
+            let label = format!("{table_name}.{column_name}");
+            let y_error = if plot.error_bars {
+                y.errors.as_deref()
+            } else {
+                None
+            };
+            let (kept, hidden) =
+                points_for_axes(&x.values, &y.values, y_error, plot.x_scale, plot.y_scale);
+            if hidden > 0 {
+                // A physicist plotting a density that vanishes at low T on a log axis
+                // expects the zeros to be left out (as plotting tools conventionally
+                // mask them), not the whole plot refused: say how many were dropped.
+                emit(Output::Stream {
+                    text: format!(
+                        "note: {hidden} point(s) of {label} with a value ≤ 0 are not shown on the logarithmic axis\n"
+                    ),
+                });
+            }
+            if kept.x.is_empty() {
+                return Err(error_at(
+                    self.source,
+                    ErrorKind::Runtime,
+                    span,
+                    format!("no point of {label} is positive, so none can be shown on a logarithmic axis; use a linear axis"),
+                ));
+            }
+            series.push(FigureSeries {
+                label,
+                x: kept.x,
+                y: kept.y,
+                y_error: kept.y_error,
+            });
+        }
+        let title = plot
+            .title
+            .clone()
+            .unwrap_or_else(|| plot.description.clone());
+        let y_label = y_names.join(", ");
+        let axis = |label: &str, unit: &str, scale: Scale| Axis {
+            label: label.to_string(),
+            unit: if unit.is_empty() {
+                None
+            } else {
+                Some(unit.to_string())
+            },
+            scale: match scale {
+                Scale::Linear => AxisScale::Linear,
+                Scale::Log => AxisScale::Log,
+            },
+        };
+        let style = match plot.style {
+            Style::Line => SeriesStyle::Line,
+            Style::Points => SeriesStyle::Points,
+            Style::Both => SeriesStyle::LineAndPoints,
+        };
+        let line_plot = LinePlot {
+            title: title.clone(),
+            x: axis(&plot.x_column, &x_unit, plot.x_scale),
+            y: axis(&y_label, &y_unit, plot.y_scale),
+            series: series
+                .iter()
+                .map(|s| Series {
+                    label: s.label.clone(),
+                    x: s.x.clone(),
+                    y: s.y.clone(),
+                    y_error: s.y_error.clone(),
+                    style,
+                })
+                .collect(),
+        };
+        let svg = match catch_unwind(AssertUnwindSafe(|| {
+            render_svg(&line_plot, plot.width_px, plot.height_px)
+        })) {
+            Ok(Ok(svg)) => svg,
+            Ok(Err(error)) => {
+                return Err(error_at(
+                    self.source,
+                    ErrorKind::Runtime,
+                    span,
+                    format!("cannot draw the plot: {error}"),
+                ))
+            }
+            Err(_) => {
+                return Err(error_at(
+                    self.source,
+                    ErrorKind::Runtime,
+                    span,
+                    "the plotting library failed on this data",
+                ))
+            }
+        };
+        let figure = Figure {
+            name: plot.target.clone().unwrap_or_default(),
+            title,
+            x_label: plot.x_column.clone(),
+            x_unit,
+            y_label,
+            y_unit,
+            series,
+            svg,
+        };
+        if let Some(name) = &plot.target {
+            self.workspace.insert(name, Value::Figure(figure.clone()));
+        }
+        emit(Output::Display(display::figure(&figure)));
+        Ok(())
+    }
+
+    fn column(&mut self, spec: &ColumnSpec, emit: &mut dyn FnMut(Output)) -> Result<(), CellError> {
+        let Some(table) = self.workspace.table(&spec.table) else {
+            return Err(error_at(
+                self.source,
+                ErrorKind::Name,
+                spec.expression_span,
+                format!("no table `{}`", spec.table),
+            ));
+        };
+        let rows = table.row_count();
+        let inputs: Vec<(String, Vec<f64>, Option<Vec<f64>>)> = spec
+            .inputs
+            .iter()
+            .filter_map(|name| {
+                table
+                    .column(name)
+                    .map(|c| (name.clone(), c.values.clone(), c.errors.clone()))
+            })
+            .collect();
+        let means: Vec<(String, Vec<f64>)> = inputs
+            .iter()
+            .map(|(n, v, _)| (n.clone(), v.clone()))
+            .collect();
+        let place = |failure: crate::script::ScriptFailure| {
+            CellError::from_problems(
+                self.source,
+                &[failure.into_problem(spec.expression_span, &spec.expression)],
+            )
+        };
+        let values = self
+            .script
+            .evaluate_rows(&spec.expression, &means, rows)
+            .map_err(place)?;
+        // First-order error propagation by central differences, one input at a time,
+        // added in quadrature (inputs treated as independent).
+        let mut variance: Option<Vec<f64>> = None;
+        for (index, (_, value, errors)) in inputs.iter().enumerate() {
+            let Some(errors) = errors else { continue };
+            let shifted = |sign: f64| -> Vec<(String, Vec<f64>)> {
+                let mut shifted = means.clone();
+                shifted[index].1 = value
+                    .iter()
+                    .zip(errors)
+                    .map(|(v, e)| v + sign * e)
+                    .collect();
+                shifted
+            };
+            let plus = self
+                .script
+                .evaluate_rows(&spec.expression, &shifted(1.0), rows)
+                .map_err(place)?;
+            let minus = self
+                .script
+                .evaluate_rows(&spec.expression, &shifted(-1.0), rows)
+                .map_err(place)?;
+            let total = variance.get_or_insert_with(|| vec![0.0; rows]);
+            for row in 0..rows {
+                let half = (plus[row] - minus[row]) / 2.0;
+                total[row] += half * half;
+            }
+        }
+        self.flush_prints(emit);
+        let column = Column {
+            name: spec.column.clone(),
+            unit: spec.unit.clone(),
+            values,
+            errors: variance.map(|v| v.into_iter().map(f64::sqrt).collect()),
+            derived_from: Some(spec.expression.clone()),
+        };
+        if let Some(table) = self.workspace.table_mut(&spec.table) {
+            match table.columns.iter_mut().find(|c| c.name == spec.column) {
+                Some(slot) => *slot = column,
+                None => table.columns.push(column),
+            }
+        }
+        Ok(())
+    }
+
+    fn export(
+        &mut self,
+        name: &str,
+        path: &str,
+        span: Span,
+        emit: &mut dyn FnMut(Output),
+    ) -> Result<(), CellError> {
+        let Some(table) = self.workspace.table(name) else {
+            return Err(error_at(
+                self.source,
+                ErrorKind::Name,
+                span,
+                format!("no table `{name}`"),
+            ));
+        };
+        let text = csv(table);
+        if let Err(error) = std::fs::write(path, text) {
+            return Err(error_at(
+                self.source,
+                ErrorKind::Runtime,
+                span,
+                format!("cannot write `{path}`: {error}"),
+            ));
+        }
+        emit(Output::Stream {
+            text: format!("wrote {} rows of `{name}` to {path}\n", table.row_count()),
+        });
+        Ok(())
+    }
+}
+
+/// CSV with the unit in each header ("energy [K]", "energy_error [K]").
+pub fn csv(table: &Table) -> String {
+    let quote = |text: String| {
+        if text.contains(',') || text.contains('"') {
+            format!("\"{}\"", text.replace('"', "\"\""))
+        } else {
+            text
+        }
+    };
+    let mut headers = Vec::new();
+    for c in &table.columns {
+        headers.push(quote(header(&c.name, &c.unit)));
+        if c.errors.is_some() {
+            headers.push(quote(header(&format!("{}_error", c.name), &c.unit)));
+        }
+    }
+    let mut out = headers.join(",");
+    out.push('\n');
+    for row in 0..table.row_count() {
+        let mut cells = Vec::new();
+        for c in &table.columns {
+            cells.push(format!(
+                "{}",
+                c.values.get(row).copied().unwrap_or(f64::NAN)
+            ));
+            if let Some(e) = &c.errors {
+                cells.push(format!("{}", e.get(row).copied().unwrap_or(f64::NAN)));
+            }
+        }
+        out.push_str(&cells.join(","));
+        out.push('\n');
+    }
+    out
+}
+
+/// Runs a scan on a worker thread while this thread forwards throttled progress.
+fn run_with_progress(
+    scan: &ScanStep,
+    interrupt: &Interrupt,
+    emit: &mut dyn FnMut(Output),
+) -> Result<ScanResult, String> {
+    let latest: Mutex<Option<Progress>> = Mutex::new(None);
+    let callback = |p: &Progress| {
+        if let Ok(mut slot) = latest.lock() {
+            *slot = Some(p.clone());
+        }
+    };
+    let label = |p: Progress| Progress {
+        label: format!("{}: {}", scan.target, p.label),
+        ..p
+    };
+    std::thread::scope(|scope| {
+        let worker = scope.spawn(|| {
+            catch_unwind(AssertUnwindSafe(|| {
+                run_scan(&scan.settings, interrupt, &callback)
+            }))
+        });
+        let mut last_sent = Instant::now();
+        while !worker.is_finished() {
+            std::thread::sleep(Duration::from_millis(20));
+            if last_sent.elapsed() >= PROGRESS_INTERVAL {
+                let progress = latest.lock().ok().and_then(|mut slot| slot.take());
+                if let Some(p) = progress {
+                    emit(Output::Progress(label(p)));
+                    last_sent = Instant::now();
+                }
+            }
+        }
+        let outcome = worker.join();
+        if let Some(p) = latest.lock().ok().and_then(|mut slot| slot.take()) {
+            emit(Output::Progress(label(p)));
+        }
+        match outcome {
+            Ok(Ok(Ok(result))) => Ok(result),
+            Ok(Ok(Err(error))) => Err(error.to_string()),
+            _ => Err("the scan failed inside the simulation library".to_string()),
+        }
+    })
+}
+
+fn point_value(point: &ScanPoint, measure: Measure) -> (f64, Option<f64>) {
+    let estimate = |e: &icefield_stdlib::scan::Estimate| (e.mean, Some(e.error));
+    match measure {
+        Measure::Energy => estimate(&point.energy_per_spin_kelvin),
+        Measure::SpecificHeat => estimate(&point.specific_heat_per_spin),
+        Measure::Magnetisation => estimate(&point.magnetisation_per_spin),
+        Measure::Susceptibility => estimate(&point.susceptibility_per_spin),
+        Measure::MonopoleDensity => estimate(&point.monopole_density_per_spin),
+        Measure::SingleChargeDensity => estimate(&point.single_charge_density),
+        Measure::DoubleChargeDensity => estimate(&point.double_charge_density),
+        Measure::AcceptanceRate => (point.acceptance_rate, None),
+        Measure::AutocorrelationTime => (point.integrated_autocorrelation_sweeps, None),
+    }
+}
+
+/// The result table of a scan: T, then one column per measure.
+pub fn scan_table(scan: &ScanStep, result: &ScanResult, cell: u64) -> Table {
+    let mut columns = vec![Column {
+        name: TEMPERATURE_COLUMN.to_string(),
+        unit: TEMPERATURE_UNIT.to_string(),
+        values: result.points.iter().map(|p| p.temperature_kelvin).collect(),
+        errors: None,
+        derived_from: None,
+    }];
+    for &measure in &scan.measures {
+        let pairs: Vec<(f64, Option<f64>)> = result
+            .points
+            .iter()
+            .map(|p| point_value(p, measure))
+            .collect();
+        let has_errors =
+            MEASURES.iter().any(|m| m.measure == measure) && pairs.iter().all(|(_, e)| e.is_some());
+        columns.push(Column {
+            name: measure.name().to_string(),
+            unit: measure.unit().to_string(),
+            values: pairs.iter().map(|(v, _)| *v).collect(),
+            errors: if has_errors && !pairs.is_empty() {
+                Some(pairs.iter().map(|(_, e)| e.unwrap_or(0.0)).collect())
+            } else if has_errors {
+                Some(Vec::new())
+            } else {
+                None
+            },
+            derived_from: None,
+        });
+    }
+    let settings = &result.settings;
+    Table {
+        name: scan.target.clone(),
+        columns,
+        provenance: Some(Provenance {
+            source: "Metropolis temperature scan".to_string(),
+            lattice: scan.lattice.describe(),
+            model: scan.couplings.describe(),
+            seed: settings.seed,
+            measurement_sweeps: settings.measurement_sweeps,
+            equilibration_sweeps: settings.equilibration_sweeps,
+            sample_every_sweeps: settings.sample_every_sweeps,
+            start: format!("{:?}", settings.start),
+            temperatures_requested: settings.temperatures_kelvin.len(),
+            interrupted: result.interrupted,
+            cell,
+        }),
+    }
+}
+
+fn summary(scan: &ScanStep, table: &Table, elapsed: Duration) -> String {
+    let t = &scan.settings.temperatures_kelvin;
+    let lo = t.iter().copied().fold(f64::INFINITY, f64::min);
+    let hi = t.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+    let columns: Vec<String> = table
+        .columns
+        .iter()
+        .map(|c| header(&c.name, &c.unit))
+        .collect();
+    let example = table
+        .columns
+        .iter()
+        .find(|c| c.name == "specific_heat")
+        .or_else(|| table.columns.get(1))
+        .map(|c| c.name.clone())
+        .unwrap_or_else(|| "energy".to_string());
+    format!(
+        "{name}: {n} temperatures from {lo} K to {hi} K in {secs:.1} s; {lattice}; J_eff = {j} K; \
+         seed {seed}{default}; {sweeps} sweeps after {eq} to equilibrate\n\
+         columns: {columns}\n\
+         show it with `table {name}` or `plot {name}.{example} against T`\n",
+        name = scan.target,
+        n = table.row_count(),
+        lo = format_number(lo),
+        hi = format_number(hi),
+        secs = elapsed.as_secs_f64(),
+        lattice = scan.lattice.describe(),
+        j = format_number(scan.couplings.j_eff_kelvin),
+        seed = scan.settings.seed,
+        default = if scan.seed_declared {
+            ""
+        } else {
+            " (default; declare one with `seed N`)"
+        },
+        sweeps = scan.settings.measurement_sweeps,
+        eq = scan.settings.equilibration_sweeps,
+        columns = columns.join(", "),
+    )
+}
+
+pub fn describe_model(workspace: &Workspace) -> String {
+    let model = &workspace.model;
+    let mut text = String::from("model\n");
+    text.push_str(&format!(
+        "  lattice:   {}\n",
+        model
+            .lattice
+            .as_ref()
+            .map(|l| l.describe())
+            .unwrap_or_else(|| "not declared".to_string())
+    ));
+    text.push_str(&format!(
+        "  couplings: {}\n",
+        model
+            .couplings
+            .as_ref()
+            .map(|c| c.describe())
+            .unwrap_or_else(|| "not declared".to_string())
+    ));
+    text.push_str(&format!(
+        "  seed:      {}\n",
+        model
+            .seed
+            .map(|s| s.to_string())
+            .unwrap_or_else(|| format!("{} (default)", crate::workspace::DEFAULT_SEED))
+    ));
+    let measures = model.measures.clone().unwrap_or_else(Measure::all);
+    text.push_str(&format!(
+        "  measures:  {}\n",
+        measures
+            .iter()
+            .map(|m| m.name())
+            .collect::<Vec<_>>()
+            .join(", ")
+    ));
+    text
+}
+
+pub fn describe_workspace(workspace: &Workspace) -> String {
+    if workspace.values.is_empty() {
+        return "the workspace holds no tables or figures yet\n".to_string();
+    }
+    let mut text = String::from("workspace\n");
+    for (name, value) in &workspace.values {
+        match value {
+            Value::Table(t) => text.push_str(&format!(
+                "  {name}: table, {} rows; columns {}\n",
+                t.row_count(),
+                t.columns
+                    .iter()
+                    .map(|c| header(&c.name, &c.unit))
+                    .collect::<Vec<_>>()
+                    .join(", ")
+            )),
+            Value::Figure(f) => text.push_str(&format!(
+                "  {name}: figure, {} against {}\n",
+                header(&f.y_label, &f.y_unit),
+                header(&f.x_label, &f.x_unit)
+            )),
+        }
+    }
+    text
+}
+
+/// The points of one series that can be drawn on the chosen axes.
+struct DrawablePoints {
+    x: Vec<f64>,
+    y: Vec<f64>,
+    y_error: Option<Vec<f64>>,
+}
+
+/// Keeps the points whose coordinates are positive on every logarithmic axis;
+/// returns them with the number left out.
+fn points_for_axes(
+    x: &[f64],
+    y: &[f64],
+    y_error: Option<&[f64]>,
+    x_scale: Scale,
+    y_scale: Scale,
+) -> (DrawablePoints, usize) {
+    let shown = |value: f64, scale: Scale| !matches!(scale, Scale::Log) || value > 0.0;
+    let mut kept = DrawablePoints {
+        x: Vec::with_capacity(x.len()),
+        y: Vec::with_capacity(y.len()),
+        y_error: y_error.map(|_| Vec::with_capacity(y.len())),
+    };
+    let mut hidden = 0;
+    for (index, (&xv, &yv)) in x.iter().zip(y).enumerate() {
+        if shown(xv, x_scale) && shown(yv, y_scale) {
+            kept.x.push(xv);
+            kept.y.push(yv);
+            if let (Some(out), Some(errors)) = (kept.y_error.as_mut(), y_error) {
+                out.push(errors.get(index).copied().unwrap_or(0.0));
+            }
+        } else {
+            hidden += 1;
+        }
+    }
+    (kept, hidden)
+}

@@ -1,0 +1,200 @@
+//! The workspace: named values that persist across cells (the model declaration, result
+//! tables, figures). Everything here is serde-serialisable so a session can be saved.
+
+use serde::{Deserialize, Serialize};
+
+use crate::measures::Measure;
+
+/// The lattice the model lives on.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
+pub enum LatticeKind {
+    Pyrochlore,
+}
+
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct LatticeDecl {
+    pub kind: LatticeKind,
+    /// L: the system is L×L×L conventional cubic cells, periodic.
+    pub cells_per_side: usize,
+}
+
+impl LatticeDecl {
+    pub fn spin_count(&self) -> usize {
+        match self.kind {
+            LatticeKind::Pyrochlore => 16 * self.cells_per_side.pow(3),
+        }
+    }
+    pub fn describe(&self) -> String {
+        match self.kind {
+            LatticeKind::Pyrochlore => format!(
+                "pyrochlore, L = {} ({} spins)",
+                self.cells_per_side,
+                self.spin_count()
+            ),
+        }
+    }
+}
+
+/// The nearest-neighbour spin-ice model H = J_eff Σ_⟨ij⟩ σ_i σ_j.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct CouplingsDecl {
+    /// The Ising (σσ) coefficient J_eff in kelvin.
+    pub j_eff_kelvin: f64,
+    /// How the user gave it, for provenance ("J1 = 3 K (vector convention), D = 1.4 K").
+    pub given_as: String,
+}
+
+impl CouplingsDecl {
+    pub fn describe(&self) -> String {
+        format!(
+            "nearest-neighbour spin ice, J_eff = {} K (σσ coefficient){}",
+            crate::units::format_number(self.j_eff_kelvin),
+            if self.given_as.is_empty() {
+                String::new()
+            } else {
+                format!("; given as {}", self.given_as)
+            }
+        )
+    }
+}
+
+/// The model declaration: lattice, couplings, seed, active measures.
+#[derive(Clone, Debug, Default, PartialEq, Serialize, Deserialize)]
+pub struct Model {
+    pub lattice: Option<LatticeDecl>,
+    pub couplings: Option<CouplingsDecl>,
+    pub seed: Option<u64>,
+    /// The measures a scan records; `None`: all of them.
+    pub measures: Option<Vec<Measure>>,
+}
+
+/// The seed a run uses when none was declared.
+pub const DEFAULT_SEED: u64 = 1;
+
+/// One column of a result table.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct Column {
+    pub name: String,
+    /// Unit as shown in headers ("K", "J/(mol K)"); empty for a pure number.
+    pub unit: String,
+    pub values: Vec<f64>,
+    /// One-standard-error bars, when the column has them.
+    pub errors: Option<Vec<f64>>,
+    /// For a derived column: the expression that made it.
+    pub derived_from: Option<String>,
+}
+
+/// Where a table came from.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct Provenance {
+    pub source: String,
+    pub lattice: String,
+    pub model: String,
+    pub seed: u64,
+    pub measurement_sweeps: u64,
+    pub equilibration_sweeps: u64,
+    pub sample_every_sweeps: u64,
+    pub start: String,
+    /// Temperatures asked for; fewer rows than this means the run was interrupted.
+    pub temperatures_requested: usize,
+    pub interrupted: bool,
+    /// The cell (execution number in this session) that made it.
+    pub cell: u64,
+}
+
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct Table {
+    pub name: String,
+    pub columns: Vec<Column>,
+    pub provenance: Option<Provenance>,
+}
+
+impl Table {
+    pub fn column(&self, name: &str) -> Option<&Column> {
+        self.columns.iter().find(|c| c.name == name)
+    }
+    pub fn row_count(&self) -> usize {
+        self.columns.first().map(|c| c.values.len()).unwrap_or(0)
+    }
+    pub fn column_names(&self) -> Vec<String> {
+        self.columns.iter().map(|c| c.name.clone()).collect()
+    }
+}
+
+/// A figure: what was plotted, and its SVG.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct Figure {
+    pub name: String,
+    pub title: String,
+    pub x_label: String,
+    pub x_unit: String,
+    pub y_label: String,
+    pub y_unit: String,
+    pub series: Vec<FigureSeries>,
+    pub svg: String,
+}
+
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct FigureSeries {
+    pub label: String,
+    pub x: Vec<f64>,
+    pub y: Vec<f64>,
+    pub y_error: Option<Vec<f64>>,
+}
+
+/// A named value.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub enum Value {
+    Table(Table),
+    Figure(Figure),
+}
+
+impl Value {
+    pub fn kind(&self) -> &'static str {
+        match self {
+            Value::Table(_) => "table",
+            Value::Figure(_) => "figure",
+        }
+    }
+}
+
+/// Names of the workspace that are not values: `show model`, `show workspace`.
+pub const RESERVED_SHOW_NAMES: &[&str] = &["model", "workspace", "measures"];
+
+#[derive(Clone, Debug, Default, PartialEq, Serialize, Deserialize)]
+pub struct Workspace {
+    pub model: Model,
+    /// Named values in the order they were first defined.
+    pub values: Vec<(String, Value)>,
+}
+
+impl Workspace {
+    pub fn get(&self, name: &str) -> Option<&Value> {
+        self.values.iter().find(|(n, _)| n == name).map(|(_, v)| v)
+    }
+    pub fn table(&self, name: &str) -> Option<&Table> {
+        match self.get(name) {
+            Some(Value::Table(t)) => Some(t),
+            _ => None,
+        }
+    }
+    pub fn table_mut(&mut self, name: &str) -> Option<&mut Table> {
+        self.values
+            .iter_mut()
+            .find(|(n, _)| n == name)
+            .and_then(|(_, v)| match v {
+                Value::Table(t) => Some(t),
+                _ => None,
+            })
+    }
+    /// Stores a value, replacing one of the same name in place.
+    pub fn insert(&mut self, name: &str, value: Value) {
+        match self.values.iter_mut().find(|(n, _)| n == name) {
+            Some(slot) => slot.1 = value,
+            None => self.values.push((name.to_string(), value)),
+        }
+    }
+    pub fn names(&self) -> Vec<String> {
+        self.values.iter().map(|(n, _)| n.clone()).collect()
+    }
+}
