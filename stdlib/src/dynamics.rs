@@ -50,6 +50,9 @@ use rand::{Rng, RngCore};
 use serde::{Deserialize, Serialize};
 use std::fmt;
 
+mod exponential;
+use exponential::ExponentialZiggurat;
+
 /// μ_B/k_B in K/T (CODATA 2018, physics-reference §2).
 pub const BOHR_MAGNETON_KELVIN_PER_TESLA: f64 = 0.671_713_81;
 
@@ -361,6 +364,12 @@ pub struct Kinetics<'a, E: DiscreteFlipEnergy> {
     sigma: Vec<i8>,
     tetrahedron_sums: Vec<i8>,
     gates: GateClasses,
+    /// Base-3 gate key of every spin ([`gating::gate_key`]), updated in O(1)
+    /// per neighbour flip so a flip re-classes its six neighbours from six
+    /// bytes instead of their 36 neighbour spins.
+    gate_keys: Vec<u8>,
+    /// Exponential variates for the rejection-free clock.
+    exponential: Box<ExponentialZiggurat>,
     rule: AcceptanceRule,
     temperature_kelvin: f64,
     attempt_times: AttemptTimes,
@@ -409,6 +418,9 @@ impl<'a, E: DiscreteFlipEnergy> Kinetics<'a, E> {
             .map(|t| crate::hamiltonian::tetrahedron_sum(lat, &sigma, t))
             .collect();
         let gates = GateClasses::new(lat, &sigma);
+        let gate_keys: Vec<u8> = (0..lat.spin_count())
+            .map(|i| gating::gate_key(lat, &sigma, i))
+            .collect();
         let mut sublattice_sums = [0i64; 4];
         for (i, &s) in sigma.iter().enumerate() {
             sublattice_sums[i & 3] += s as i64;
@@ -419,6 +431,8 @@ impl<'a, E: DiscreteFlipEnergy> Kinetics<'a, E> {
             sigma,
             tetrahedron_sums,
             gates,
+            gate_keys,
+            exponential: Box::new(ExponentialZiggurat::new()),
             rule,
             temperature_kelvin,
             attempt_times,
@@ -608,16 +622,18 @@ impl<'a, E: DiscreteFlipEnergy> Kinetics<'a, E> {
                 let old = *self.tetrahedron_sums.get_unchecked(t);
                 let new = old - 2 * s;
                 *self.tetrahedron_sums.get_unchecked_mut(t) = new;
-                match old.unsigned_abs() {
-                    2 => self.single_charges -= 1,
-                    4 => self.double_charges -= 1,
-                    _ => {}
-                }
-                match new.unsigned_abs() {
-                    2 => self.single_charges += 1,
-                    4 => self.double_charges += 1,
-                    _ => {}
-                }
+                // Branch-free charge bookkeeping: which of |S| = 2, 4 the
+                // tetrahedron leaves and enters is data-dependent and would
+                // mispredict about half the time.
+                let (o, n) = (old.unsigned_abs() as u64, new.unsigned_abs() as u64);
+                self.single_charges = self
+                    .single_charges
+                    .wrapping_add((n == 2) as u64)
+                    .wrapping_sub((o == 2) as u64);
+                self.double_charges = self
+                    .double_charges
+                    .wrapping_add((n == 4) as u64)
+                    .wrapping_sub((o == 4) as u64);
             }
             *self.sublattice_sums.get_unchecked_mut(spin & 3) -= 2 * s as i64;
         }
@@ -629,11 +645,16 @@ impl<'a, E: DiscreteFlipEnergy> Kinetics<'a, E> {
         };
         self.energy.after_flip(&view, spin);
         let gates = self.gates.as_mut_slice();
+        let a = spin & 3;
         for &j in lat.neighbours(spin) {
-            // SAFETY: neighbour indices are < N and sigma holds ±1 only.
+            let j = j as usize;
+            // SAFETY: neighbour indices are < N = gate_keys.len() =
+            // gates.len(); 4·(j & 3) + a < 16.
             unsafe {
-                *gates.get_unchecked_mut(j as usize) =
-                    gating::gate_class_unchecked(lat.neighbours(j as usize), &self.sigma);
+                let w = *gating::KEY_WEIGHT.get_unchecked(4 * (j & 3) + a);
+                let key = self.gate_keys.get_unchecked_mut(j);
+                *key = (*key as i8 - s * w) as u8;
+                *gates.get_unchecked_mut(j) = gating::class_of_key(*key);
             }
         }
         self.flips += 1;
@@ -768,9 +789,7 @@ impl<'a, E: DiscreteFlipEnergy> Kinetics<'a, E> {
                 reached = true;
                 break;
             }
-            // u ∈ (0, 1] so ln u is finite.
-            let u = ((self.rng.next_u64() >> 11) + 1) as f64 * (1.0 / (1u64 << 53) as f64);
-            let dt = -u.ln() / total;
+            let dt = self.exponential.sample(&mut self.rng) / total;
             if self.time_seconds + dt > t_end {
                 // Memoryless: discarding the partial wait is exact.
                 self.time_seconds = self.time_seconds.max(t_end);
@@ -804,7 +823,7 @@ impl<'a, E: DiscreteFlipEnergy> Kinetics<'a, E> {
                 }
             }
             let bucket = &b.members[chosen];
-            let spin = bucket[self.rng.gen_range(0..bucket.len())] as usize;
+            let spin = bucket[uniform_index(&mut self.rng, bucket.len())] as usize;
             self.apply_flip(spin, observer);
             // Re-class the flipped spin and its six neighbours.
             let lat = self.lat;
@@ -815,15 +834,21 @@ impl<'a, E: DiscreteFlipEnergy> Kinetics<'a, E> {
                 sigma: &self.sigma,
                 tetrahedron_sums: &self.tetrahedron_sums,
             };
-            for &j in &update {
+            // Two passes: the seven new groups are independent loads and
+            // can be computed in parallel; the bucket moves, which chain
+            // through shared bucket lengths, follow.
+            let mut groups = [0u16; 7];
+            for (g, &j) in groups.iter_mut().zip(&update) {
                 let j = j as usize;
                 // SAFETY: j < N = gates.len().
                 let gate = unsafe { *self.gates.as_slice().get_unchecked(j) } as usize;
                 let class = self.energy.energy_class(&view, j) * GATE_CLASS_COUNT + gate;
                 // SAFETY: class < class_group.len() by the DiscreteFlipEnergy contract.
                 debug_assert!(class < self.class_group.len());
-                let new = unsafe { *self.class_group.get_unchecked(class) } as usize;
-                b.move_spin(j, new, &self.group_rate);
+                *g = unsafe { *self.class_group.get_unchecked(class) };
+            }
+            for (&g, &j) in groups.iter().zip(&update) {
+                b.move_spin(j as usize, g as usize, &self.group_rate);
             }
             b.events_since_refresh += 1;
         }
@@ -935,18 +960,20 @@ impl Buckets {
         // < rate.len() = members.len() by the DiscreteFlipEnergy contract,
         // checked in debug builds.
         debug_assert!(new < self.members.len());
-        let old = unsafe { *self.class_of.get_unchecked(spin) } as usize;
-        if old == new {
-            return;
-        }
+        // Branch-free: whether the group changes is data-dependent, so the
+        // spin is always swap-removed and pushed; with old == new it just
+        // moves to the end of its bucket.
         unsafe {
+            let old = *self.class_of.get_unchecked(spin) as usize;
             let p = *self.position.get_unchecked(spin) as usize;
             let bucket = self.members.get_unchecked_mut(old);
-            let last = bucket.pop().unwrap_or(spin as u32);
-            if last as usize != spin {
-                *bucket.get_unchecked_mut(p) = last;
-                *self.position.get_unchecked_mut(last as usize) = p as u32;
-            }
+            // The spin is in its bucket, so it is not empty.
+            debug_assert!(p < bucket.len());
+            let last_index = bucket.len() - 1;
+            let last = *bucket.get_unchecked(last_index);
+            *bucket.get_unchecked_mut(p) = last;
+            *self.position.get_unchecked_mut(last as usize) = p as u32;
+            bucket.set_len(last_index);
             let target = self.members.get_unchecked_mut(new);
             *self.position.get_unchecked_mut(spin) = target.len() as u32;
             target.push(spin as u32);
@@ -954,6 +981,21 @@ impl Buckets {
             self.total_rate += *rate.get_unchecked(new) - *rate.get_unchecked(old);
         }
     }
+}
+
+/// Exactly uniform index in `0..len` (`len ≥ 1`) by Lemire's multiply-shift
+/// with rejection (ACM Trans. Model. Comput. Simul. 29, 3 (2019)).
+#[inline(always)]
+fn uniform_index(rng: &mut SpinRng, len: usize) -> usize {
+    let n = len as u64;
+    let mut m = rng.next_u64() as u128 * n as u128;
+    if (m as u64) < n {
+        let threshold = n.wrapping_neg() % n;
+        while (m as u64) < threshold {
+            m = rng.next_u64() as u128 * n as u128;
+        }
+    }
+    (m >> 64) as usize
 }
 
 fn exact_total(members: &[Vec<u32>], rate: &[f64]) -> f64 {

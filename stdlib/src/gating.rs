@@ -105,23 +105,45 @@ pub fn gate_class(lat: &Pyrochlore, sigma: &[i8], spin: usize) -> u8 {
     CLASS_BY_KEY[key]
 }
 
-/// Unchecked version of [`gate_class`] for hot loops.
-///
-/// # Safety
-/// Every entry of `nb` must be a valid index into `sigma`, and `sigma` must
-/// hold only ±1.
+/// Base-3 key `Σ_k (m_k + 1) 3^k` of `spin` (index of [`class_of_key`]),
+/// with `k` the position of the partner pair in the neighbour order.
+#[inline]
+pub(crate) fn gate_key(lat: &Pyrochlore, sigma: &[i8], spin: usize) -> u8 {
+    let nb = lat.neighbours(spin);
+    let p = |k: usize| ((sigma[nb[k] as usize] + sigma[nb[k + 3] as usize] + 2) / 2) as u8;
+    p(0) + 3 * p(1) + 9 * p(2)
+}
+
+/// Gate class of a base-3 key (`key < 27`).
 #[inline(always)]
-pub(crate) unsafe fn gate_class_unchecked(nb: &[u32; 6], sigma: &[i8]) -> u8 {
-    let p = |k: usize| {
-        // SAFETY: by the function contract.
-        let pair = unsafe {
-            *sigma.get_unchecked(nb[k] as usize) + *sigma.get_unchecked(nb[k + 3] as usize)
-        };
-        ((pair + 2) >> 1) as usize
-    };
-    let key = p(0) + 3 * p(1) + 9 * p(2);
-    // SAFETY: each p(k) ∈ 0..3 for ±1 spins, so key < 27.
-    unsafe { *CLASS_BY_KEY.get_unchecked(key) }
+pub(crate) fn class_of_key(key: u8) -> u8 {
+    CLASS_BY_KEY[key as usize % 27]
+}
+
+/// `KEY_WEIGHT[4b + a]`: weight `3^k` in the key of a spin of sublattice `b`
+/// of its partner pair of sublattice `a ≠ b`. The partners are listed in
+/// sublattice order of the other three sublattices, so `k = a − [a > b]`
+/// (derived from the order of [`Pyrochlore::neighbours`]). When a partner
+/// of sublattice `a` goes from `σ = s` to `−s`, the pair sum changes by
+/// `−2s` and the key by `−s·KEY_WEIGHT[4b + a]`: an O(1) update of the
+/// neighbour's class without re-reading its six neighbours.
+pub(crate) const KEY_WEIGHT: [i8; 16] = build_key_weights();
+
+const fn build_key_weights() -> [i8; 16] {
+    let mut w = [0i8; 16];
+    let mut b = 0;
+    while b < 4 {
+        let mut a = 0;
+        while a < 4 {
+            if a != b {
+                let k = if a > b { a - 1 } else { a };
+                w[4 * b + a] = [1, 3, 9][k];
+            }
+            a += 1;
+        }
+        b += 1;
+    }
+    w
 }
 
 /// The transverse-field vector `h⊥_i = Σ_j σ_j (e_j − (e_j·e_i) e_i)` over
@@ -360,6 +382,32 @@ mod tests {
     }
 
     #[test]
+    fn key_weights_update_keys_like_recomputation() {
+        // Flipping one neighbour changes the key by −s·3^k (derived, see
+        // KEY_WEIGHT); checked against recomputation for every spin and
+        // every neighbour of a random state.
+        let lat = Pyrochlore::new(2).unwrap();
+        let mut rng = RngStreams::new(17).stream(0);
+        let mut sigma = initial_configuration(&lat, Start::Random, &mut rng);
+        for i in 0..lat.spin_count() {
+            let before: Vec<u8> = lat
+                .neighbours(i)
+                .iter()
+                .map(|&j| gate_key(&lat, &sigma, j as usize))
+                .collect();
+            let s = sigma[i];
+            sigma[i] = -s;
+            for (k, &j) in lat.neighbours(i).iter().enumerate() {
+                let j = j as usize;
+                let w = KEY_WEIGHT[4 * (j % 4) + i % 4];
+                let updated = (before[k] as i8 - s * w) as u8;
+                assert_eq!(updated, gate_key(&lat, &sigma, j));
+                assert_eq!(class_of_key(updated), gate_class(&lat, &sigma, j));
+            }
+        }
+    }
+
+    #[test]
     fn exhaustive_64_patterns_give_four_classes_with_derived_counts() {
         // Every one of the 64 neighbour patterns on a real site, with h⊥ from
         // the easy-axis vectors: exactly four magnitudes {0, 2, 2√3, 4}·|g|,
@@ -447,9 +495,7 @@ mod tests {
         }
         assert_eq!(gates, GateClasses::new(&lat, &sigma));
         for i in 0..lat.spin_count() {
-            // SAFETY: neighbours are valid indices, sigma is ±1.
-            let fast = unsafe { gate_class_unchecked(lat.neighbours(i), &sigma) };
-            assert_eq!(fast, gates.class(i));
+            assert_eq!(class_of_key(gate_key(&lat, &sigma, i)), gates.class(i));
         }
     }
 
