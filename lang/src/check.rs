@@ -13,8 +13,11 @@ use crate::measures::{Measure, MEASURES, PLANNED_MEASURES, TEMPERATURE_COLUMN, T
 use crate::script::{Script, BUILTIN_FUNCTIONS};
 use crate::units::{self, Dimension};
 use crate::workspace::{
-    CouplingsDecl, LatticeDecl, LatticeKind, Value as WsValue, Workspace, RESERVED_SHOW_NAMES,
+    CouplingsDecl, CouplingsUpdate, FieldDecl, LatticeDecl, LatticeKind, Value as WsValue,
+    Workspace, RESERVED_SHOW_NAMES,
 };
+use icefield_stdlib::engine::FlipRule;
+use icefield_stdlib::exchange::{CouplingConvention, ExchangeCouplings, ZeemanField};
 
 /// The largest L accepted by the checker (stdlib refuses sizes that do not fit memory).
 pub const MAX_CELLS_PER_SIDE: u64 = 1000;
@@ -25,13 +28,27 @@ pub const DEFAULT_SCAN_NAME: &str = "last_scan";
 
 pub const LATTICE_KINDS: &[&str] = &["pyrochlore"];
 pub const PLANNED_LATTICE_KINDS: &[&str] = &["square_ice"];
-pub const COUPLING_KINDS: &[&str] = &["nearest"];
-pub const PLANNED_COUPLING_KINDS: &[&str] = &["exchange", "dipolar"];
+pub const COUPLING_KINDS: &[&str] = &["nearest", "exchange", "dipolar"];
+pub const PLANNED_COUPLING_KINDS: &[&str] = &[];
 
 pub const LATTICE_OPTIONS: &[&str] = &["L"];
 pub const NEAREST_OPTIONS: &[&str] = &["J_eff", "J1", "convention", "D"];
+pub const EXCHANGE_OPTIONS: &[&str] = &["J1", "J2", "J3", "J3'", "convention"];
+pub const DIPOLAR_OPTIONS: &[&str] = &["D", "moment", "r_nn"];
+/// The single-flip acceptance rules of a scan.
+pub const ACCEPTANCE_RULES: &[&str] = &["metropolis", "heat_bath"];
+/// The most loop moves per sweep a scan accepts.
+pub const MAX_LOOPS_PER_SWEEP: u64 = 1_000_000;
 pub const FIELD_OPTIONS: &[&str] = &["B", "moment"];
-pub const SCAN_OPTIONS: &[&str] = &["sweeps", "equilibrate", "sample_every", "spacing", "start"];
+pub const SCAN_OPTIONS: &[&str] = &[
+    "sweeps",
+    "equilibrate",
+    "sample_every",
+    "spacing",
+    "start",
+    "acceptance",
+    "loops",
+];
 pub const TABLE_OPTIONS: &[&str] = &["columns"];
 pub const PLOT_OPTIONS: &[&str] = &[
     "xscale", "yscale", "title", "style", "errors", "width", "height",
@@ -86,6 +103,10 @@ pub struct ScanSpec {
     pub equilibration_sweeps: u64,
     pub sample_every_sweeps: u64,
     pub start: StartState,
+    /// Single-flip acceptance rule.
+    pub rule: FlipRule,
+    /// Ice-manifold loop moves attempted after every sweep.
+    pub loops_per_sweep: u64,
     pub measures: Vec<Measure>,
     /// No later statement of the cell shows this table: print a short summary.
     pub summary: bool,
@@ -133,7 +154,8 @@ pub enum ShowTarget {
 #[derive(Clone, Debug, PartialEq)]
 pub enum Checked {
     Lattice(LatticeDecl),
-    Couplings(CouplingsDecl),
+    Couplings(CouplingsUpdate),
+    Field(FieldDecl),
     Seed(u64),
     Measure(Vec<Measure>),
     Scan(ScanSpec),
@@ -182,7 +204,11 @@ struct View {
     names: Vec<(String, NameView)>,
     lattice: bool,
     couplings: bool,
+    /// A field with a direction is declared (so `magnetisation_along` has a meaning).
+    field_direction: bool,
     measures: Vec<Measure>,
+    /// The measures were chosen by a `measure` statement (not the default set).
+    measures_chosen: bool,
     functions: Vec<(String, usize)>,
     variables: Vec<String>,
     /// A rhai block of the cell failed to parse: accept unknown functions and variables.
@@ -215,6 +241,12 @@ impl View {
             names,
             lattice: workspace.model.lattice.is_some(),
             couplings: workspace.model.couplings.is_some(),
+            field_direction: workspace
+                .model
+                .field
+                .as_ref()
+                .is_some_and(|f| f.direction.is_some()),
+            measures_chosen: workspace.model.measures.is_some(),
             measures: workspace
                 .model
                 .measures
@@ -248,6 +280,7 @@ impl View {
         match failed.keyword.as_str() {
             "lattice" => self.lattice = true,
             "couplings" => self.couplings = true,
+            "field" => self.field_direction = true,
             "rhai" => self.lenient_script = true,
             "column" => {
                 if let Some((table, column)) =
@@ -591,7 +624,7 @@ impl<'a> Checker<'a> {
             StatementKind::Couplings { kind, options } => {
                 self.couplings(statement, kind, options, view)
             }
-            StatementKind::Field { options } => self.field(statement, options),
+            StatementKind::Field { options } => self.field(statement, options, view),
             StatementKind::Seed { value } => self.seed(value),
             StatementKind::Measure { names } => self.measure(names, view),
             StatementKind::Scan {
@@ -740,6 +773,11 @@ impl<'a> Checker<'a> {
         if !self.kind_name(kind, COUPLING_KINDS, PLANNED_COUPLING_KINDS, "coupling set") {
             return None;
         }
+        match kind.name.as_str() {
+            "exchange" => return self.exchange(statement, options),
+            "dipolar" => return self.dipolar(statement, options),
+            _ => {}
+        }
         let before_options = self.problems.len();
         let options = self.options(options, NEAREST_OPTIONS, "couplings nearest");
         // A misspelt option already explains a missing one.
@@ -768,6 +806,8 @@ impl<'a> Checker<'a> {
                 CouplingsDecl {
                     j_eff_kelvin: value,
                     given_as: String::new(),
+                    exchange: None,
+                    dipolar_kelvin: None,
                 }
             }
             (None, Some(j1)) => {
@@ -814,6 +854,8 @@ impl<'a> Checker<'a> {
                 CouplingsDecl {
                     j_eff_kelvin: j_nn + d_nn,
                     given_as,
+                    exchange: None,
+                    dipolar_kelvin: None,
                 }
             }
             (Some(_), Some(j1)) => {
@@ -839,89 +881,234 @@ impl<'a> Checker<'a> {
         if self.problems.len() > before {
             return None;
         }
-        Some(Checked::Couplings(decl))
+        Some(Checked::Couplings(CouplingsUpdate::Nearest(decl)))
     }
 
-    fn field(&mut self, statement: &Statement, options: &[Opt]) -> Option<Checked> {
+    /// `convention = vector | ising` (vector by default).
+    fn convention(&mut self, option: Option<&Opt>) -> Option<CouplingConvention> {
+        match option {
+            Some(c) => self
+                .word(&c.value, "`convention`", &["vector", "ising"])
+                .map(|w| {
+                    if w == "vector" {
+                        CouplingConvention::VectorSpins
+                    } else {
+                        CouplingConvention::IsingPseudospins
+                    }
+                }),
+            None => Some(CouplingConvention::VectorSpins),
+        }
+    }
+
+    /// A positive quantity of `dimension`.
+    fn positive(&mut self, option: &Opt, dimension: Dimension, what: &str) -> Option<f64> {
+        let Value::Quantity(q) = &option.value else {
+            self.push(Problem::new(
+                ErrorKind::Value,
+                option.value.span(),
+                format!("{what} is a number with a unit"),
+            ));
+            return None;
+        };
+        let value = self.convert(q, None, dimension, what, false)?;
+        if value <= 0.0 {
+            self.push(Problem::new(
+                ErrorKind::Value,
+                q.span,
+                format!("{what} must be positive"),
+            ));
+            return None;
+        }
+        Some(value)
+    }
+
+    /// `couplings exchange J1 = ..., J2 = ..., J3 = ..., J3' = ... [, convention = ...]`.
+    fn exchange(&mut self, statement: &Statement, options: &[Opt]) -> Option<Checked> {
+        let before = self.problems.len();
+        let options = self.options(options, EXCHANGE_OPTIONS, "couplings exchange");
+        if self.problems.len() > before {
+            return None;
+        }
+        let find = |key: &str| options.iter().find(|o| o.key.name == key).copied();
+        let convention = self.convention(find("convention"));
+        let mut shells = [0.0; 4];
+        let mut any = false;
+        for (slot, key) in shells.iter_mut().zip(["J1", "J2", "J3", "J3'"]) {
+            if let Some(option) = find(key) {
+                any = true;
+                if let Some(v) = self.energy_option(option, &format!("`{key}`")) {
+                    *slot = v;
+                }
+            }
+        }
+        if !any {
+            self.push(
+                Problem::new(
+                    ErrorKind::Value,
+                    statement.span,
+                    "`couplings exchange` needs at least one of `J1`, `J2`, `J3`, `J3'`",
+                )
+                .with_help("write e.g. `couplings exchange J1 = 3.41 K, J2 = -0.14 K`"),
+            );
+        }
+        if self.problems.len() > before {
+            return None;
+        }
+        let couplings = ExchangeCouplings {
+            j1_kelvin: shells[0],
+            j2_kelvin: shells[1],
+            j3_kelvin: shells[2],
+            j3_prime_kelvin: shells[3],
+            convention: convention?,
+        };
+        Some(Checked::Couplings(CouplingsUpdate::Exchange(couplings)))
+    }
+
+    /// `couplings dipolar D = E` or `couplings dipolar moment = M µB, r_nn = R Å`.
+    fn dipolar(&mut self, statement: &Statement, options: &[Opt]) -> Option<Checked> {
+        let before = self.problems.len();
+        let options = self.options(options, DIPOLAR_OPTIONS, "couplings dipolar");
+        if self.problems.len() > before {
+            return None;
+        }
+        let find = |key: &str| options.iter().find(|o| o.key.name == key).copied();
+        let d_kelvin = match (find("D"), find("moment"), find("r_nn")) {
+            (Some(d), None, None) => {
+                let value = self.energy_option(d, "`D`")?;
+                if value < 0.0 {
+                    self.push(Problem::new(
+                        ErrorKind::Value,
+                        d.value.span(),
+                        "the dipolar strength D = μ0μ²/(4π k_B r_nn³) is positive",
+                    ));
+                    return None;
+                }
+                value
+            }
+            (None, Some(moment), Some(r_nn)) => {
+                let mu = self.positive(moment, Dimension::Moment, "`moment`");
+                let r = self.positive(r_nn, Dimension::Length, "`r_nn`");
+                // D = μ0 μ² / (4π k_B r_nn³) with CODATA constants (physics-reference §2).
+                icefield_stdlib::ewald::dipolar_strength_kelvin(mu?, r?)
+            }
+            (Some(d), _, _) => {
+                self.push(Problem::new(
+                    ErrorKind::Value,
+                    d.key.span,
+                    "give either `D` or `moment` and `r_nn`, not both",
+                ));
+                return None;
+            }
+            _ => {
+                self.push(
+                    Problem::new(
+                        ErrorKind::Value,
+                        statement.span,
+                        "`couplings dipolar` needs `D`, or both `moment` and `r_nn`",
+                    )
+                    .with_help(
+                        "write `couplings dipolar D = 1.41 K` or \
+                         `couplings dipolar moment = 10 µB, r_nn = 3.54 Å`",
+                    ),
+                );
+                return None;
+            }
+        };
+        Some(Checked::Couplings(CouplingsUpdate::Dipolar { d_kelvin }))
+    }
+
+    fn field(
+        &mut self,
+        statement: &Statement,
+        options: &[Opt],
+        view: &mut View,
+    ) -> Option<Checked> {
         let options = self.options(options, FIELD_OPTIONS, "field");
         let before = self.problems.len();
-        let mut saw_field = false;
+        let mut field: Option<([f64; 3], Option<[f64; 3]>)> = None;
+        let mut moment = None;
         for option in &options {
             match option.key.name.as_str() {
-                "B" => {
-                    saw_field = true;
-                    self.field_vector(&option.value);
-                }
-                "moment" => match &option.value {
-                    Value::Quantity(q) => {
-                        if let Some(m) = self.convert(q, None, Dimension::Moment, "`moment`", false)
-                        {
-                            if m <= 0.0 {
-                                self.push(Problem::new(
-                                    ErrorKind::Value,
-                                    q.span,
-                                    "the moment must be positive",
-                                ));
-                            }
-                        }
-                    }
-                    other => self.push(Problem::new(
-                        ErrorKind::Value,
-                        other.span(),
-                        "`moment` is a magnetic moment such as `10 µB`",
-                    )),
-                },
+                "B" => field = self.field_vector(&option.value),
+                "moment" => moment = self.positive(option, Dimension::Moment, "`moment`"),
                 _ => {}
             }
         }
-        if !saw_field {
+        if !options.iter().any(|o| o.key.name == "B") {
             self.push(
                 Problem::new(ErrorKind::Value, statement.span, "`field` needs `B = ...`")
                     .with_help("write e.g. `field B = 0.5 T along [1, 1, 1], moment = 10 µB`"),
             );
         }
-        if self.problems.len() == before {
-            self.push(Problem::new(
-                ErrorKind::NotImplemented,
-                statement.keyword.span,
-                "field terms arrive with the equilibrium engine: the nearest-neighbour engine of \
-                 this version runs at B = 0 (REFERENCE.md, \"Couplings\")",
-            ));
+        // A wrong field already explains the statement; ask for the moment only otherwise.
+        if self.problems.len() == before && !options.iter().any(|o| o.key.name == "moment") {
+            self.push(
+                Problem::new(
+                    ErrorKind::Value,
+                    statement.span,
+                    "`field` needs the moment per spin, `moment = ...` in µB",
+                )
+                .with_help("write e.g. `field B = 0.5 T along [1, 1, 1], moment = 10 µB`"),
+            );
         }
-        None
+        // Even a failed declaration counts, so later lines get no follow-up errors.
+        view.field_direction = true;
+        if self.problems.len() > before {
+            return None;
+        }
+        let (field_tesla, direction) = field?;
+        view.field_direction = direction.is_some();
+        Some(Checked::Field(FieldDecl {
+            field: ZeemanField {
+                field_tesla,
+                moment_bohr_magnetons: moment?,
+            },
+            direction,
+        }))
     }
 
-    /// `0.5 T along [1, 1, 1]` or `[0, 0, 0.5] T`.
-    fn field_vector(&mut self, value: &Value) {
+    /// `0.5 T along [1, 1, 1]` or `[0, 0, 0.5] T`: the field vector in tesla and the unit
+    /// vector of its direction (none for a zero vector given by components).
+    fn field_vector(&mut self, value: &Value) -> Option<([f64; 3], Option<[f64; 3]>)> {
+        let unit = |v: &[f64]| {
+            let norm = (v[0] * v[0] + v[1] * v[1] + v[2] * v[2]).sqrt();
+            (norm > 0.0).then(|| [v[0] / norm, v[1] / norm, v[2] / norm])
+        };
         match value {
             Value::Directed {
                 magnitude,
                 direction,
                 ..
             } => {
-                self.convert(magnitude, None, Dimension::MagneticField, "`B`", false);
+                let b = self.convert(magnitude, None, Dimension::MagneticField, "`B`", false);
                 let components = self.vector(direction, Dimension::Dimensionless, "a direction");
-                if let Some(c) = components {
-                    if c.iter().all(|x| *x == 0.0) {
-                        self.push(Problem::new(
-                            ErrorKind::Value,
-                            direction.span(),
-                            "the direction [0, 0, 0] has no orientation",
-                        ));
-                    }
-                }
+                let c = components?;
+                let Some(n) = unit(&c) else {
+                    self.push(Problem::new(
+                        ErrorKind::Value,
+                        direction.span(),
+                        "the direction [0, 0, 0] has no orientation",
+                    ));
+                    return None;
+                };
+                let b = b?;
+                Some(([b * n[0], b * n[1], b * n[2]], Some(n)))
             }
             Value::List { .. } => {
-                self.vector(value, Dimension::MagneticField, "`B`");
+                let c = self.vector(value, Dimension::MagneticField, "`B`")?;
+                Some(([c[0], c[1], c[2]], unit(&c)))
             }
-            other => self.push(
-                Problem::new(
-                    ErrorKind::Value,
-                    other.span(),
-                    "`B` is a vector: give a direction or three components",
-                )
-                .with_help("write `B = 0.5 T along [1, 1, 1]` or `B = [0, 0, 0.5] T`"),
-            ),
+            other => {
+                self.push(
+                    Problem::new(
+                        ErrorKind::Value,
+                        other.span(),
+                        "`B` is a vector: give a direction or three components",
+                    )
+                    .with_help("write `B = 0.5 T along [1, 1, 1]` or `B = [0, 0, 0.5] T`"),
+                );
+                None
+            }
         }
     }
 
@@ -1019,6 +1206,7 @@ impl<'a> Checker<'a> {
             return None;
         }
         view.measures = measures.clone();
+        view.measures_chosen = true;
         Some(Checked::Measure(measures))
     }
 
@@ -1178,6 +1366,59 @@ impl<'a> Checker<'a> {
                 }),
             None => Some(StartState::Random),
         };
+        let rule = match find("acceptance") {
+            Some(o) => self
+                .word(&o.value, "`acceptance`", ACCEPTANCE_RULES)
+                .map(|w| {
+                    if w == "heat_bath" {
+                        FlipRule::HeatBath
+                    } else {
+                        FlipRule::Metropolis
+                    }
+                }),
+            None => Some(FlipRule::Metropolis),
+        };
+        let loops = match find("loops") {
+            Some(o) => self.count(
+                &o.value,
+                "`loops` (loop moves per sweep)",
+                0,
+                MAX_LOOPS_PER_SWEEP,
+            ),
+            None => Some(0),
+        };
+        let mut measures = view.measures.clone();
+        if !view.field_direction {
+            if view.measures_chosen && measures.contains(&Measure::MagnetisationAlong) {
+                self.push(
+                    Problem::new(
+                        ErrorKind::Value,
+                        statement.keyword.span,
+                        "`magnetisation_along` is the projection on the field direction, but no \
+                         field with a direction is declared",
+                    )
+                    .with_help(
+                        "declare one first, e.g. `field B = 0.5 T along [1, 1, 1], moment = 10 µB`",
+                    ),
+                );
+            }
+            measures.retain(|m| *m != Measure::MagnetisationAlong);
+        }
+        if measures.contains(&Measure::Entropy) {
+            if let Some(t) = &temperatures {
+                if t.len() < 3 {
+                    self.push(Problem::new(
+                        ErrorKind::Value,
+                        statement.keyword.span,
+                        format!(
+                            "`entropy` integrates over the scan's temperatures and needs at least \
+                             3 of them, not {}",
+                            t.len()
+                        ),
+                    ));
+                }
+            }
+        }
         if !view.lattice {
             self.push(
                 Problem::new(
@@ -1213,11 +1454,16 @@ impl<'a> Checker<'a> {
             unit: TEMPERATURE_UNIT.to_string(),
             derived: false,
         }];
-        columns.extend(view.measures.iter().map(|m| ColumnView {
-            name: m.name().to_string(),
-            unit: m.unit().to_string(),
-            derived: false,
-        }));
+        columns.extend(
+            measures
+                .iter()
+                .flat_map(|m| m.columns())
+                .map(|(name, unit)| ColumnView {
+                    name: name.to_string(),
+                    unit: unit.to_string(),
+                    derived: false,
+                }),
+        );
         view.set(&target, NameView::Table(columns));
         Some(Checked::Scan(ScanSpec {
             target,
@@ -1226,7 +1472,9 @@ impl<'a> Checker<'a> {
             equilibration_sweeps: equilibrate,
             sample_every_sweeps: sample_every,
             start,
-            measures: view.measures.clone(),
+            rule: rule?,
+            loops_per_sweep: loops?,
+            measures,
             summary: true,
         }))
     }

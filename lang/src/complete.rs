@@ -2,8 +2,9 @@
 //! whether Enter runs the cell. All positions count Unicode code points.
 
 use crate::check::{
-    COUPLING_KINDS, FIELD_OPTIONS, LATTICE_KINDS, LATTICE_OPTIONS, NEAREST_OPTIONS, PLOT_OPTIONS,
-    SCAN_OPTIONS, START_STATES, TABLE_OPTIONS,
+    ACCEPTANCE_RULES, COUPLING_KINDS, DIPOLAR_OPTIONS, EXCHANGE_OPTIONS, FIELD_OPTIONS,
+    LATTICE_KINDS, LATTICE_OPTIONS, NEAREST_OPTIONS, PLOT_OPTIONS, SCAN_OPTIONS, START_STATES,
+    TABLE_OPTIONS,
 };
 use crate::measures::MEASURES;
 use crate::script::BUILTIN_FUNCTIONS;
@@ -93,6 +94,7 @@ fn values_for(option: &str) -> &'static [&'static str] {
         "style" => &["line", "points", "both"],
         "errors" => &["on", "off"],
         "convention" => &["vector", "ising"],
+        "acceptance" => ACCEPTANCE_RULES,
         _ => &[],
     }
 }
@@ -180,7 +182,11 @@ pub fn complete(
                 "couplings" if statement_words.len() == 1 => {
                     push_all(&mut candidates, COUPLING_KINDS.iter().copied())
                 }
-                "couplings" => push_all(&mut candidates, NEAREST_OPTIONS.iter().copied()),
+                "couplings" => match statement_words.get(1).copied() {
+                    Some("exchange") => push_all(&mut candidates, EXCHANGE_OPTIONS.iter().copied()),
+                    Some("dipolar") => push_all(&mut candidates, DIPOLAR_OPTIONS.iter().copied()),
+                    _ => push_all(&mut candidates, NEAREST_OPTIONS.iter().copied()),
+                },
                 "field" => push_all(&mut candidates, FIELD_OPTIONS.iter().copied()),
                 "scan" if statement_words.len() == 1 => push_all(&mut candidates, ["T"]),
                 "scan" => {

@@ -35,7 +35,9 @@ pub fn format_with_error(value: f64, error: f64) -> String {
     if !value.is_finite() {
         return format!("{value}");
     }
-    if !(error.is_finite() && error > 0.0) {
+    // An error far below the value's own rounding (a frozen column whose spread is
+    // float noise) is quoted as zero rather than with a dozen meaningless digits.
+    if !(error.is_finite() && error > 1e-9 * value.abs()) {
         return format!("{} ± 0", format_number(value));
     }
     let magnitude = value.abs().max(error);
@@ -264,6 +266,7 @@ mod tests {
         assert_eq!(format_with_error(-1.638, 0.0235), "-1.638 ± 0.024");
         assert_eq!(format_with_error(1234.5, 27.0), "1234 ± 27");
         assert_eq!(format_with_error(2.0, 0.0), "2 ± 0");
+        assert_eq!(format_with_error(0.5, 3e-17), "0.5 ± 0");
         assert_eq!(format_with_error(1.5e-9, 2e-10), "1.5e-9 ± 2e-10");
     }
 

@@ -1,6 +1,8 @@
 //! Compilation of checked statements into a plan: a list of typed steps, each one a call
 //! into stdlib (or a workspace operation) with every setting resolved.
 
+use icefield_stdlib::engine::FlipRule;
+use icefield_stdlib::exchange::{CouplingConvention, ExchangeCouplings, ZeemanField};
 use icefield_stdlib::hamiltonian::NearestNeighbourIce;
 use icefield_stdlib::metropolis::Start;
 use icefield_stdlib::scan::ScanSettings;
@@ -9,13 +11,39 @@ use crate::ast::Span;
 use crate::check::{Checked, CheckedStatement, ColumnSpec, PlotSpec, ShowTarget, StartState};
 use crate::diagnostic::{ErrorKind, Problem};
 use crate::measures::Measure;
-use crate::workspace::{CouplingsDecl, LatticeDecl, Model, DEFAULT_SEED};
+use crate::workspace::{CouplingsDecl, FieldDecl, LatticeDecl, Model, DEFAULT_SEED};
 
-/// A scan, ready for `icefield_stdlib::scan::run_scan`.
+/// Which engine runs a scan.
+#[derive(Clone, Debug, PartialEq)]
+pub enum ScanEngine {
+    /// `icefield_stdlib::scan::run_scan`: nearest-neighbour couplings alone, Metropolis,
+    /// no field, no loop moves (the fast path with integer energy changes).
+    NearestNeighbour,
+    /// A coupling table (exchange + Ewald dipolar + Zeeman) sampled with the local-field
+    /// engine, optionally with ice-manifold loop moves.
+    General(Box<GeneralModel>),
+}
+
+/// Everything the coupling-table engine needs besides the scan settings.
+#[derive(Clone, Debug, PartialEq)]
+pub struct GeneralModel {
+    pub exchange: Option<ExchangeCouplings>,
+    pub dipolar_kelvin: Option<f64>,
+    pub zeeman: Option<ZeemanField>,
+    /// Unit vector for `magnetisation_along`.
+    pub direction: Option<[f64; 3]>,
+    pub rule: FlipRule,
+    pub loops_per_sweep: u64,
+}
+
+/// A scan: the temperatures, lengths, seed and start (as `ScanSettings`; its model is
+/// used only by the nearest-neighbour engine) and the engine that runs it.
 #[derive(Clone, Debug)]
 pub struct ScanStep {
     pub target: String,
     pub settings: ScanSettings,
+    pub engine: ScanEngine,
+    pub field: Option<FieldDecl>,
     pub measures: Vec<Measure>,
     pub lattice: LatticeDecl,
     pub couplings: CouplingsDecl,
@@ -28,6 +56,7 @@ pub struct ScanStep {
 pub enum Plan {
     SetLattice(LatticeDecl),
     SetCouplings(CouplingsDecl),
+    SetField(FieldDecl),
     SetSeed(u64),
     SetMeasures(Vec<Measure>),
     Scan(Box<ScanStep>),
@@ -74,9 +103,14 @@ pub fn compile(checked: &[CheckedStatement], model: &Model) -> Result<Vec<Step>,
                 model.lattice = Some(l.clone());
                 Plan::SetLattice(l.clone())
             }
-            Checked::Couplings(c) => {
-                model.couplings = Some(c.clone());
-                Plan::SetCouplings(c.clone())
+            Checked::Couplings(update) => {
+                let decl = CouplingsDecl::updated(model.couplings.as_ref(), update);
+                model.couplings = Some(decl.clone());
+                Plan::SetCouplings(decl)
+            }
+            Checked::Field(field) => {
+                model.field = Some(field.clone());
+                Plan::SetField(field.clone())
             }
             Checked::Seed(s) => {
                 model.seed = Some(*s);
@@ -107,9 +141,37 @@ pub fn compile(checked: &[CheckedStatement], model: &Model) -> Result<Vec<Step>,
                     seed: model.seed.unwrap_or(DEFAULT_SEED),
                     start: start_state(scan.start),
                 };
+                let general = !couplings.is_nearest()
+                    || model.field.is_some()
+                    || scan.rule != FlipRule::Metropolis
+                    || scan.loops_per_sweep > 0;
+                let engine = if general {
+                    // Nearest-neighbour couplings on the general engine: J_eff is already
+                    // the σσ coefficient, so it enters in the Ising convention.
+                    let exchange = if couplings.is_nearest() {
+                        Some(ExchangeCouplings::nearest_neighbour(
+                            couplings.j_eff_kelvin,
+                            CouplingConvention::IsingPseudospins,
+                        ))
+                    } else {
+                        couplings.exchange
+                    };
+                    ScanEngine::General(Box::new(GeneralModel {
+                        exchange,
+                        dipolar_kelvin: couplings.dipolar_kelvin,
+                        zeeman: model.field.as_ref().map(|f| f.field),
+                        direction: model.field.as_ref().and_then(|f| f.direction),
+                        rule: scan.rule,
+                        loops_per_sweep: scan.loops_per_sweep,
+                    }))
+                } else {
+                    ScanEngine::NearestNeighbour
+                };
                 Plan::Scan(Box::new(ScanStep {
                     target: scan.target.clone(),
                     settings,
+                    engine,
+                    field: model.field.clone(),
                     measures: scan.measures.clone(),
                     lattice: lattice.clone(),
                     couplings: couplings.clone(),

@@ -6,16 +6,35 @@ use std::panic::{catch_unwind, AssertUnwindSafe};
 use std::sync::Mutex;
 use std::time::{Duration, Instant};
 
-use icefield_stdlib::control::{Interrupt, Progress};
+use std::sync::atomic::{AtomicU64, Ordering};
+
+use rayon::prelude::*;
+
+use icefield_stdlib::control::{Interrupt, Progress, ProgressFn};
+use icefield_stdlib::couplings::CouplingTable;
+use icefield_stdlib::engine::LocalFieldSampler;
+use icefield_stdlib::entropy::{
+    entropy_by_thermodynamic_integration, EnergyPoint, EntropyPoint, HighTemperatureTail,
+};
+use icefield_stdlib::ewald::{DipolarInteraction, DEFAULT_EWALD_ACCURACY};
 use icefield_stdlib::figure::{render_svg, Axis, AxisScale, LinePlot, Series, SeriesStyle};
-use icefield_stdlib::scan::{run_scan, ScanPoint, ScanResult};
+use icefield_stdlib::lattice::Pyrochlore;
+use icefield_stdlib::loops::LoopMoves;
+use icefield_stdlib::metropolis::initial_configuration;
+use icefield_stdlib::observe::{
+    blocking_analysis, Estimate, Sample, ThermodynamicSeries, MAX_STORED_SAMPLES,
+};
+use icefield_stdlib::rng::{RngStreams, SpinRng};
+use icefield_stdlib::scan::{run_scan, ScanPoint, ScanSettings, PROGRESS_LABEL};
 
 use crate::ast::Span;
 use crate::check::{ColumnSpec, PlotSpec, Scale, ShowTarget, Style};
 use crate::diagnostic::{CellError, ErrorKind, Problem};
 use crate::display::{self, header};
-use crate::measures::{Measure, MEASURES, TEMPERATURE_COLUMN, TEMPERATURE_UNIT};
-use crate::plan::{Plan, ScanStep, Step};
+use crate::measures::{
+    Measure, MEASURES, MOLAR_ENTROPY_COLUMN, TEMPERATURE_COLUMN, TEMPERATURE_UNIT,
+};
+use crate::plan::{GeneralModel, Plan, ScanEngine, ScanStep, Step};
 use crate::script::Script;
 use crate::units::format_number;
 use crate::workspace::{Column, Figure, FigureSeries, Provenance, Table, Value, Workspace};
@@ -57,6 +76,7 @@ impl Runner<'_> {
             // The checker already refused sizes that do not fit in memory.
             Plan::SetLattice(lattice) => self.workspace.model.lattice = Some(lattice),
             Plan::SetCouplings(couplings) => self.workspace.model.couplings = Some(couplings),
+            Plan::SetField(field) => self.workspace.model.field = Some(field),
             Plan::SetSeed(seed) => self.workspace.model.seed = Some(seed),
             Plan::SetMeasures(measures) => self.workspace.model.measures = Some(measures),
             Plan::Scan(scan) => self.scan(&scan, step.keyword, emit)?,
@@ -125,6 +145,11 @@ impl Runner<'_> {
         let table = scan_table(scan, &result, self.cell);
         let kept = table.row_count();
         let requested = scan.settings.temperatures_kelvin.len();
+        if let Some(note) = &result.entropy_note {
+            emit(Output::Stream {
+                text: format!("note: {note}\n"),
+            });
+        }
         self.workspace
             .insert(&scan.target, Value::Table(table.clone()));
         if result.interrupted {
@@ -475,12 +500,32 @@ pub fn csv(table: &Table) -> String {
     out
 }
 
+/// The outcome of a scan, whichever engine ran it.
+#[derive(Clone, Debug)]
+pub struct ScanOutcome {
+    /// Finished temperatures, in the order they were asked for.
+    pub points: Vec<ScanRecord>,
+    pub interrupted: bool,
+    /// S(T) at each finished temperature, when `entropy` is recorded and it could be done.
+    pub entropy: Option<Vec<EntropyPoint>>,
+    /// Why the entropy column is empty, when it is.
+    pub entropy_note: Option<String>,
+}
+
+/// One finished temperature.
+#[derive(Clone, Debug)]
+pub struct ScanRecord {
+    pub point: ScanPoint,
+    /// ⟨M⟩·n̂/N along the field direction (general engine with a field only).
+    pub magnetisation_along: Option<Estimate>,
+}
+
 /// Runs a scan on a worker thread while this thread forwards throttled progress.
 fn run_with_progress(
     scan: &ScanStep,
     interrupt: &Interrupt,
     emit: &mut dyn FnMut(Output),
-) -> Result<ScanResult, String> {
+) -> Result<ScanOutcome, String> {
     let latest: Mutex<Option<Progress>> = Mutex::new(None);
     let callback = |p: &Progress| {
         if let Ok(mut slot) = latest.lock() {
@@ -494,7 +539,7 @@ fn run_with_progress(
     std::thread::scope(|scope| {
         let worker = scope.spawn(|| {
             catch_unwind(AssertUnwindSafe(|| {
-                run_scan(&scan.settings, interrupt, &callback)
+                run_scan_step(scan, interrupt, &callback)
             }))
         });
         let mut last_sent = Instant::now();
@@ -513,15 +558,308 @@ fn run_with_progress(
             emit(Output::Progress(label(p)));
         }
         match outcome {
-            Ok(Ok(Ok(result))) => Ok(result),
-            Ok(Ok(Err(error))) => Err(error.to_string()),
+            Ok(Ok(result)) => result,
             _ => Err("the scan failed inside the simulation library".to_string()),
         }
     })
 }
 
-fn point_value(point: &ScanPoint, measure: Measure) -> (f64, Option<f64>) {
-    let estimate = |e: &icefield_stdlib::scan::Estimate| (e.mean, Some(e.error));
+/// Runs the scan on its engine, then integrates the entropy if it is recorded.
+pub fn run_scan_step(
+    scan: &ScanStep,
+    interrupt: &Interrupt,
+    progress: ProgressFn,
+) -> Result<ScanOutcome, String> {
+    let (points, interrupted, tail) = match &scan.engine {
+        ScanEngine::NearestNeighbour => {
+            let result =
+                run_scan(&scan.settings, interrupt, progress).map_err(|e| e.to_string())?;
+            let j = scan.settings.model.j_eff_kelvin;
+            // H = J_eff Σ_⟨ij⟩ σσ: E_∞ = 0 and v = 3 J_eff² (3 bonds per spin, each
+            // ⟨(σσ)²⟩ = 1; derived).
+            let tail = HighTemperatureTail {
+                infinite_temperature_energy_per_spin_kelvin: 0.0,
+                energy_variance_per_spin_kelvin2: 3.0 * j * j,
+            };
+            let points = result
+                .points
+                .into_iter()
+                .map(|point| ScanRecord {
+                    point,
+                    magnetisation_along: None,
+                })
+                .collect();
+            (points, result.interrupted, tail)
+        }
+        ScanEngine::General(model) => run_general_scan(&scan.settings, model, interrupt, progress)?,
+    };
+    let mut outcome = ScanOutcome {
+        points,
+        interrupted,
+        entropy: None,
+        entropy_note: None,
+    };
+    if scan.measures.contains(&Measure::Entropy) {
+        let energies: Vec<EnergyPoint> = outcome
+            .points
+            .iter()
+            .map(|r| EnergyPoint {
+                temperature_kelvin: r.point.temperature_kelvin,
+                energy_per_spin_kelvin: r.point.energy_per_spin_kelvin,
+            })
+            .collect();
+        match entropy_by_thermodynamic_integration(&energies, tail) {
+            Ok(entropy) => outcome.entropy = Some(entropy),
+            Err(error) => {
+                outcome.entropy_note = Some(format!("the entropy could not be integrated: {error}"))
+            }
+        }
+    }
+    Ok(outcome)
+}
+
+/// The coupling table of a general model: exchange shells, the Ewald-summed dipolar term
+/// (conducting boundary; de Leeuw, Perram & Smith, Proc. R. Soc. A 373, 27 (1980)) and the
+/// Zeeman term, added into one translation-invariant table.
+pub fn coupling_table(lat: &Pyrochlore, model: &GeneralModel) -> Result<CouplingTable, String> {
+    let mut table = CouplingTable::zero(lat).map_err(|e| e.to_string())?;
+    if let Some(exchange) = &model.exchange {
+        exchange
+            .add_to(lat, &mut table)
+            .map_err(|e| e.to_string())?;
+    }
+    if let Some(d_kelvin) = model.dipolar_kelvin {
+        DipolarInteraction {
+            d_kelvin,
+            accuracy: DEFAULT_EWALD_ACCURACY,
+        }
+        .add_to(lat, &mut table)
+        .map_err(|e| e.to_string())?;
+    }
+    if let Some(zeeman) = &model.zeeman {
+        zeeman.add_to(&mut table).map_err(|e| e.to_string())?;
+    }
+    Ok(table)
+}
+
+/// Shared progress bookkeeping of the general scan: an atomic sweep counter reported
+/// about every 0.5 % of the work.
+struct SweepCounter<'a> {
+    done: AtomicU64,
+    total: u64,
+    step: u64,
+    report: ProgressFn<'a>,
+}
+
+impl SweepCounter<'_> {
+    fn sweep_done(&self) {
+        let done = self.done.fetch_add(1, Ordering::Relaxed) + 1;
+        if done.is_multiple_of(self.step) || done == self.total {
+            (self.report)(&Progress {
+                label: PROGRESS_LABEL.to_string(),
+                done,
+                total: self.total,
+            });
+        }
+    }
+}
+
+/// A scalar series stored as means of bins (bounded memory; adjacent bins merge when
+/// full, which keeps the mean exact and only removes blocking levels below the bin width).
+struct BinnedSeries {
+    bins: Vec<f64>,
+    width: usize,
+    partial: f64,
+    count: usize,
+}
+
+impl BinnedSeries {
+    fn new() -> Self {
+        BinnedSeries {
+            bins: Vec::new(),
+            width: 1,
+            partial: 0.0,
+            count: 0,
+        }
+    }
+    fn push(&mut self, value: f64) {
+        self.partial += value;
+        self.count += 1;
+        if self.count == self.width {
+            self.bins.push(self.partial / self.width as f64);
+            self.partial = 0.0;
+            self.count = 0;
+            if self.bins.len() >= MAX_STORED_SAMPLES {
+                self.bins = self
+                    .bins
+                    .chunks_exact(2)
+                    .map(|p| 0.5 * (p[0] + p[1]))
+                    .collect();
+                self.width *= 2;
+            }
+        }
+    }
+    /// Mean with a Flyvbjerg–Petersen blocking error (J. Chem. Phys. 91, 461 (1989)).
+    fn estimate(&self) -> Option<Estimate> {
+        blocking_analysis(&self.bins).map(|b| b.estimate())
+    }
+}
+
+/// Finished temperatures, whether the scan was interrupted, and the model's
+/// high-temperature tail (for the entropy).
+type GeneralScan = (Vec<ScanRecord>, bool, HighTemperatureTail);
+
+/// A temperature scan of a coupling-table model with the local-field engine, in parallel
+/// over temperatures; temperature `i` draws from stream `i` of the seed, so the numbers do
+/// not depend on the number of threads. The interrupt is polled before every sweep;
+/// finished temperatures are kept.
+pub fn run_general_scan(
+    settings: &ScanSettings,
+    model: &GeneralModel,
+    interrupt: &Interrupt,
+    progress: ProgressFn,
+) -> Result<GeneralScan, String> {
+    let lat = Pyrochlore::new(settings.cells_per_side).map_err(|e| e.to_string())?;
+    let table = coupling_table(&lat, model)?;
+    let n = lat.spin_count() as f64;
+    let tail = HighTemperatureTail {
+        infinite_temperature_energy_per_spin_kelvin: table.constant_energy_kelvin() / n,
+        energy_variance_per_spin_kelvin2: table.infinite_temperature_energy_variance_per_spin(),
+    };
+    let total = settings
+        .equilibration_sweeps
+        .saturating_add(settings.measurement_sweeps)
+        .saturating_mul(settings.temperatures_kelvin.len() as u64);
+    let counter = SweepCounter {
+        done: AtomicU64::new(0),
+        total,
+        step: (total / 200).max(1),
+        report: progress,
+    };
+    (counter.report)(&Progress {
+        label: PROGRESS_LABEL.to_string(),
+        done: 0,
+        total,
+    });
+    let streams = RngStreams::new(settings.seed);
+    let outcomes: Vec<Result<Option<ScanRecord>, String>> = settings
+        .temperatures_kelvin
+        .par_iter()
+        .enumerate()
+        .map(|(index, &t)| {
+            let rng = streams.stream(index as u64);
+            general_temperature(&lat, &table, settings, model, t, rng, interrupt, &counter)
+        })
+        .collect();
+    let mut points = Vec::new();
+    let mut complete = true;
+    for outcome in outcomes {
+        match outcome? {
+            Some(record) => points.push(record),
+            None => complete = false,
+        }
+    }
+    Ok((points, !complete, tail))
+}
+
+/// One temperature of the general scan; `Ok(None)` if interrupted before it finished.
+#[allow(clippy::too_many_arguments)]
+fn general_temperature(
+    lat: &Pyrochlore,
+    table: &CouplingTable,
+    settings: &ScanSettings,
+    model: &GeneralModel,
+    temperature_kelvin: f64,
+    mut rng: SpinRng,
+    interrupt: &Interrupt,
+    counter: &SweepCounter,
+) -> Result<Option<ScanRecord>, String> {
+    if interrupt.is_requested() {
+        return Ok(None);
+    }
+    let sigma = initial_configuration(lat, settings.start, &mut rng);
+    let mut sampler =
+        LocalFieldSampler::new(lat, table, temperature_kelvin, model.rule, sigma, rng)
+            .map_err(|e| e.to_string())?;
+    let mut loops = (model.loops_per_sweep > 0).then(|| LoopMoves::new(lat));
+    // One sweep: N single-flip attempts, then the loop moves (Barkema & Newman, Phys. Rev.
+    // E 57, 1155 (1998); Melko, den Hertog & Gingras, Phys. Rev. Lett. 87, 067203 (2001)),
+    // accepted with Metropolis on the full energy change.
+    let mut sweep = |sampler: &mut LocalFieldSampler<'_>| -> u64 {
+        let accepted = sampler.sweep();
+        if let Some(moves) = loops.as_mut() {
+            for _ in 0..model.loops_per_sweep {
+                moves.attempt(sampler);
+            }
+        }
+        accepted
+    };
+    for _ in 0..settings.equilibration_sweeps {
+        if interrupt.is_requested() {
+            return Ok(None);
+        }
+        sweep(&mut sampler);
+        counter.sweep_done();
+    }
+    // Recompute the energy from the fields so rounding accumulated while equilibrating
+    // does not enter the measurement.
+    sampler.resynchronise_energy();
+    let mut series = ThermodynamicSeries::new(lat.spin_count(), lat.tetrahedron_count());
+    let mut along = model.direction.map(|_| BinnedSeries::new());
+    let n = lat.spin_count() as f64;
+    let mut accepted = 0u64;
+    let mut attempted = 0u64;
+    for index in 1..=settings.measurement_sweeps {
+        if interrupt.is_requested() {
+            return Ok(None);
+        }
+        accepted += sweep(&mut sampler);
+        attempted += lat.spin_count() as u64;
+        if index % settings.sample_every_sweeps == 0 {
+            let charges = sampler.charge_counts();
+            let m = sampler.magnetisation();
+            series.push(&Sample {
+                energy_kelvin: sampler.energy_kelvin(),
+                magnetisation: m,
+                single_charges: charges.single,
+                double_charges: charges.double,
+            });
+            if let (Some(s), Some(d)) = (along.as_mut(), model.direction) {
+                s.push((m[0] * d[0] + m[1] * d[1] + m[2] * d[2]) / n);
+            }
+        }
+        counter.sweep_done();
+    }
+    let Some(th) = series.thermodynamics(temperature_kelvin) else {
+        return Err(format!(
+            "too few samples at T = {} K for error bars",
+            format_number(temperature_kelvin)
+        ));
+    };
+    let point = ScanPoint {
+        temperature_kelvin,
+        energy_per_spin_kelvin: th.energy_per_spin_kelvin,
+        specific_heat_per_spin: th.specific_heat_per_spin,
+        magnetisation_per_spin: th.magnetisation_per_spin,
+        susceptibility_per_spin: th.susceptibility_per_spin,
+        single_charge_density: th.single_charge_density,
+        double_charge_density: th.double_charge_density,
+        monopole_density_per_spin: th.monopole_density_per_spin,
+        acceptance_rate: accepted as f64 / attempted.max(1) as f64,
+        samples: th.samples,
+        integrated_autocorrelation_sweeps: th.energy_autocorrelation_samples
+            * settings.sample_every_sweeps as f64,
+        errors_converged: th.blocking_converged,
+    };
+    Ok(Some(ScanRecord {
+        point,
+        magnetisation_along: along.and_then(|s| s.estimate()),
+    }))
+}
+
+fn point_value(record: &ScanRecord, measure: Measure) -> (f64, Option<f64>) {
+    let point = &record.point;
+    let estimate = |e: &Estimate| (e.mean, Some(e.error));
     match measure {
         Measure::Energy => estimate(&point.energy_per_spin_kelvin),
         Measure::SpecificHeat => estimate(&point.specific_heat_per_spin),
@@ -532,19 +870,63 @@ fn point_value(point: &ScanPoint, measure: Measure) -> (f64, Option<f64>) {
         Measure::DoubleChargeDensity => estimate(&point.double_charge_density),
         Measure::AcceptanceRate => (point.acceptance_rate, None),
         Measure::AutocorrelationTime => (point.integrated_autocorrelation_sweeps, None),
+        Measure::MagnetisationAlong => match &record.magnetisation_along {
+            Some(e) => estimate(e),
+            None => (f64::NAN, Some(f64::NAN)),
+        },
+        // Filled from the integration in `scan_table`.
+        Measure::Entropy => (f64::NAN, Some(f64::NAN)),
     }
 }
 
-/// The result table of a scan: T, then one column per measure.
-pub fn scan_table(scan: &ScanStep, result: &ScanResult, cell: u64) -> Table {
+/// The entropy of the row at `temperature_kelvin`, per spin and in J/(mol K).
+fn entropy_at(outcome: &ScanOutcome, temperature_kelvin: f64) -> Option<(Estimate, Estimate)> {
+    outcome
+        .entropy
+        .as_ref()?
+        .iter()
+        .find(|e| e.temperature_kelvin == temperature_kelvin)
+        .map(|e| (e.entropy_per_spin, e.entropy_joule_per_mole_kelvin))
+}
+
+/// The result table of a scan: T, then the columns of each measure.
+pub fn scan_table(scan: &ScanStep, result: &ScanOutcome, cell: u64) -> Table {
     let mut columns = vec![Column {
         name: TEMPERATURE_COLUMN.to_string(),
         unit: TEMPERATURE_UNIT.to_string(),
-        values: result.points.iter().map(|p| p.temperature_kelvin).collect(),
+        values: result
+            .points
+            .iter()
+            .map(|r| r.point.temperature_kelvin)
+            .collect(),
         errors: None,
         derived_from: None,
     }];
     for &measure in &scan.measures {
+        if measure == Measure::Entropy {
+            let pairs: Vec<(Estimate, Estimate)> = result
+                .points
+                .iter()
+                .map(|r| {
+                    entropy_at(result, r.point.temperature_kelvin).unwrap_or((
+                        Estimate::new(f64::NAN, f64::NAN),
+                        Estimate::new(f64::NAN, f64::NAN),
+                    ))
+                })
+                .collect();
+            for (index, (name, unit)) in measure.columns().into_iter().enumerate() {
+                let pick = |p: &(Estimate, Estimate)| if index == 0 { p.0 } else { p.1 };
+                columns.push(Column {
+                    name: name.to_string(),
+                    unit: unit.to_string(),
+                    values: pairs.iter().map(|p| pick(p).mean).collect(),
+                    errors: Some(pairs.iter().map(|p| pick(p).error).collect()),
+                    derived_from: None,
+                });
+            }
+            debug_assert_eq!(measure.columns()[1], MOLAR_ENTROPY_COLUMN);
+            continue;
+        }
         let pairs: Vec<(f64, Option<f64>)> = result
             .points
             .iter()
@@ -566,12 +948,31 @@ pub fn scan_table(scan: &ScanStep, result: &ScanResult, cell: u64) -> Table {
             derived_from: None,
         });
     }
-    let settings = &result.settings;
+    let settings = &scan.settings;
+    let source = match &scan.engine {
+        ScanEngine::NearestNeighbour => "Metropolis temperature scan".to_string(),
+        ScanEngine::General(model) => format!(
+            "{} temperature scan on the coupling-table engine{}{}",
+            match model.rule {
+                icefield_stdlib::engine::FlipRule::Metropolis => "Metropolis",
+                icefield_stdlib::engine::FlipRule::HeatBath => "heat-bath",
+            },
+            if model.loops_per_sweep > 0 {
+                format!(", {} loop moves per sweep", model.loops_per_sweep)
+            } else {
+                String::new()
+            },
+            match &scan.field {
+                Some(field) => format!(", field {}", field.describe()),
+                None => String::new(),
+            }
+        ),
+    };
     Table {
         name: scan.target.clone(),
         columns,
         provenance: Some(Provenance {
-            source: "Metropolis temperature scan".to_string(),
+            source,
             lattice: scan.lattice.describe(),
             model: scan.couplings.describe(),
             seed: settings.seed,
@@ -645,6 +1046,9 @@ pub fn describe_model(workspace: &Workspace) -> String {
             .map(|c| c.describe())
             .unwrap_or_else(|| "not declared".to_string())
     ));
+    if let Some(field) = &model.field {
+        text.push_str(&format!("  field:     {}\n", field.describe()));
+    }
     text.push_str(&format!(
         "  seed:      {}\n",
         model

@@ -3,6 +3,8 @@
 
 use serde::{Deserialize, Serialize};
 
+use icefield_stdlib::exchange::{CouplingConvention, ExchangeCouplings, ZeemanField};
+
 use crate::measures::Measure;
 
 /// The lattice the model lives on.
@@ -35,17 +37,86 @@ impl LatticeDecl {
     }
 }
 
-/// The nearest-neighbour spin-ice model H = J_eff Σ_⟨ij⟩ σ_i σ_j.
+/// The declared couplings: the nearest-neighbour spin-ice model H = J_eff Σ_⟨ij⟩ σ_i σ_j
+/// (`couplings nearest`), or a general model of exchange shells and/or the Ewald-summed
+/// dipolar term (`couplings exchange`, `couplings dipolar`), which run on stdlib's
+/// coupling-table engine.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 pub struct CouplingsDecl {
-    /// The Ising (σσ) coefficient J_eff in kelvin.
+    /// The Ising (σσ) coefficient J_eff in kelvin. For a general model: the effective
+    /// nearest-neighbour coefficient J_nn + 5D/3 (physics-reference §2), for orientation.
     pub j_eff_kelvin: f64,
     /// How the user gave it, for provenance ("J1 = 3 K (vector convention), D = 1.4 K").
     pub given_as: String,
+    /// Exchange shells J1, J2, J3, J3' (`couplings exchange`).
+    #[serde(default)]
+    pub exchange: Option<ExchangeCouplings>,
+    /// Dipolar strength D in kelvin (`couplings dipolar`), summed by Ewald summation.
+    #[serde(default)]
+    pub dipolar_kelvin: Option<f64>,
+}
+
+/// What one `couplings` statement declares.
+#[derive(Clone, Debug, PartialEq)]
+pub enum CouplingsUpdate {
+    /// `couplings nearest`: replaces every earlier coupling.
+    Nearest(CouplingsDecl),
+    /// `couplings exchange`: replaces the exchange part of a general model.
+    Exchange(ExchangeCouplings),
+    /// `couplings dipolar`: replaces the dipolar part of a general model.
+    Dipolar { d_kelvin: f64 },
 }
 
 impl CouplingsDecl {
+    /// Whether this is the nearest-neighbour model alone (the fast engine).
+    pub fn is_nearest(&self) -> bool {
+        self.exchange.is_none() && self.dipolar_kelvin.is_none()
+    }
+
+    /// The couplings after `update`: `exchange` and `dipolar` statements add up (each
+    /// replaces only its own part, so re-running a cell is harmless); `nearest` starts over.
+    pub fn updated(previous: Option<&CouplingsDecl>, update: &CouplingsUpdate) -> CouplingsDecl {
+        let general = previous.filter(|p| !p.is_nearest());
+        let (mut exchange, mut dipolar) = (
+            general.and_then(|p| p.exchange),
+            general.and_then(|p| p.dipolar_kelvin),
+        );
+        let mut parts: Vec<String> = Vec::new();
+        match update {
+            CouplingsUpdate::Nearest(decl) => return decl.clone(),
+            CouplingsUpdate::Exchange(couplings) => exchange = Some(*couplings),
+            CouplingsUpdate::Dipolar { d_kelvin } => dipolar = Some(*d_kelvin),
+        }
+        let mut j_nn = 0.0;
+        if let Some(x) = exchange {
+            j_nn = match x.convention {
+                CouplingConvention::VectorSpins => -x.j1_kelvin / 3.0,
+                CouplingConvention::IsingPseudospins => x.j1_kelvin,
+            };
+            parts.push(describe_exchange(&x));
+        }
+        if let Some(d) = dipolar {
+            parts.push(format!(
+                "dipolar D = {} K (Ewald, conducting boundary)",
+                crate::units::format_number(d)
+            ));
+        }
+        CouplingsDecl {
+            j_eff_kelvin: j_nn + 5.0 * dipolar.unwrap_or(0.0) / 3.0,
+            given_as: parts.join("; "),
+            exchange,
+            dipolar_kelvin: dipolar,
+        }
+    }
+
     pub fn describe(&self) -> String {
+        if !self.is_nearest() {
+            return format!(
+                "{}; effective nearest-neighbour J_eff = {} K (σσ coefficient J_nn + 5D/3)",
+                self.given_as,
+                crate::units::format_number(self.j_eff_kelvin)
+            );
+        }
         format!(
             "nearest-neighbour spin ice, J_eff = {} K (σσ coefficient){}",
             crate::units::format_number(self.j_eff_kelvin),
@@ -58,11 +129,52 @@ impl CouplingsDecl {
     }
 }
 
+fn describe_exchange(x: &ExchangeCouplings) -> String {
+    let f = crate::units::format_number;
+    format!(
+        "exchange J1 = {} K, J2 = {} K, J3 = {} K, J3' = {} K ({} convention)",
+        f(x.j1_kelvin),
+        f(x.j2_kelvin),
+        f(x.j3_kelvin),
+        f(x.j3_prime_kelvin),
+        match x.convention {
+            CouplingConvention::VectorSpins => "vector",
+            CouplingConvention::IsingPseudospins => "Ising",
+        }
+    )
+}
+
+/// A uniform field: the Zeeman term −μ Σ_i S_i·B.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct FieldDecl {
+    pub field: ZeemanField,
+    /// Unit vector of the field direction (the direction written after `along`, or B/|B|);
+    /// `None` for a zero field given by components.
+    pub direction: Option<[f64; 3]>,
+}
+
+impl FieldDecl {
+    pub fn describe(&self) -> String {
+        let f = crate::units::format_number;
+        let b = self.field.field_tesla;
+        format!(
+            "B = [{}, {}, {}] T, moment = {} µB",
+            f(b[0]),
+            f(b[1]),
+            f(b[2]),
+            f(self.field.moment_bohr_magnetons)
+        )
+    }
+}
+
 /// The model declaration: lattice, couplings, seed, active measures.
 #[derive(Clone, Debug, Default, PartialEq, Serialize, Deserialize)]
 pub struct Model {
     pub lattice: Option<LatticeDecl>,
     pub couplings: Option<CouplingsDecl>,
+    /// The Zeeman field, if one was declared.
+    #[serde(default)]
+    pub field: Option<FieldDecl>,
     pub seed: Option<u64>,
     /// The measures a scan records; `None`: all of them.
     pub measures: Option<Vec<Measure>>,
