@@ -25,6 +25,29 @@ def test_there_is_a_demo_notebook():
     assert NOTEBOOKS, f"no demo notebook (*.ipynb) in {DEMO}"
 
 
+def _cells_of_script(script: Path) -> list[tuple[str, str]]:
+    """The cells notebooks-demo/build_notebooks.py makes of a demo script."""
+    import importlib.util
+
+    spec = importlib.util.spec_from_file_location("build_notebooks", DEMO / "build_notebooks.py")
+    module = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(module)
+    return module.cells_of(script.read_text(encoding="utf-8"))
+
+
+@pytest.mark.parametrize("path", NOTEBOOKS, ids=[p.name for p in NOTEBOOKS])
+def test_notebook_matches_its_script(path: Path):
+    # The script is the single source of a demo: a notebook edited by hand, or a script
+    # changed without rebuilding the notebook, would show readers something else.
+    script = path.with_suffix(".ifld")
+    assert script.exists(), f"{path.name} has no script {script.name} beside it"
+    notebook = nbformat.read(path, as_version=4)
+    stored = [(cell.cell_type, cell.source) for cell in notebook.cells]
+    assert stored == _cells_of_script(script), (
+        f"{path.name} differs from {script.name}: run python notebooks-demo/build_notebooks.py"
+    )
+
+
 @pytest.mark.parametrize("path", NOTEBOOKS, ids=[p.name for p in NOTEBOOKS])
 def test_notebook_runs_and_shows_a_figure(path: Path):
     notebook = nbformat.read(path, as_version=4)
