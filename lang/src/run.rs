@@ -6,11 +6,9 @@ use std::panic::{catch_unwind, AssertUnwindSafe};
 use std::sync::Mutex;
 use std::time::{Duration, Instant};
 
-use std::sync::atomic::{AtomicU64, Ordering};
-
 use rayon::prelude::*;
 
-use icefield_stdlib::control::{Interrupt, Progress, ProgressFn};
+use icefield_stdlib::control::{Interrupt, Progress, ProgressFn, SharedProgress};
 use icefield_stdlib::couplings::CouplingTable;
 use icefield_stdlib::engine::LocalFieldSampler;
 use icefield_stdlib::entropy::{
@@ -642,28 +640,6 @@ pub fn coupling_table(lat: &Pyrochlore, model: &GeneralModel) -> Result<Coupling
     Ok(table)
 }
 
-/// Shared progress bookkeeping of the general scan: an atomic sweep counter reported
-/// about every 0.5 % of the work.
-struct SweepCounter<'a> {
-    done: AtomicU64,
-    total: u64,
-    step: u64,
-    report: ProgressFn<'a>,
-}
-
-impl SweepCounter<'_> {
-    fn sweep_done(&self) {
-        let done = self.done.fetch_add(1, Ordering::Relaxed) + 1;
-        if done.is_multiple_of(self.step) || done == self.total {
-            (self.report)(&Progress {
-                label: PROGRESS_LABEL.to_string(),
-                done,
-                total: self.total,
-            });
-        }
-    }
-}
-
 /// A scalar series stored as means of bins (bounded memory; adjacent bins merge when
 /// full, which keeps the mean exact and only removes blocking levels below the bin width).
 struct BinnedSeries {
@@ -730,17 +706,7 @@ pub fn run_general_scan(
         .equilibration_sweeps
         .saturating_add(settings.measurement_sweeps)
         .saturating_mul(settings.temperatures_kelvin.len() as u64);
-    let counter = SweepCounter {
-        done: AtomicU64::new(0),
-        total,
-        step: (total / 200).max(1),
-        report: progress,
-    };
-    (counter.report)(&Progress {
-        label: PROGRESS_LABEL.to_string(),
-        done: 0,
-        total,
-    });
+    let counter = SharedProgress::start(PROGRESS_LABEL, total, progress);
     let streams = RngStreams::new(settings.seed);
     let outcomes: Vec<Result<Option<ScanRecord>, String>> = settings
         .temperatures_kelvin
@@ -772,7 +738,7 @@ fn general_temperature(
     temperature_kelvin: f64,
     mut rng: SpinRng,
     interrupt: &Interrupt,
-    counter: &SweepCounter,
+    counter: &SharedProgress,
 ) -> Result<Option<ScanRecord>, String> {
     if interrupt.is_requested() {
         return Ok(None);
@@ -799,7 +765,7 @@ fn general_temperature(
             return Ok(None);
         }
         sweep(&mut sampler);
-        counter.sweep_done();
+        counter.unit_done();
     }
     // Recompute the energy from the fields so rounding accumulated while equilibrating
     // does not enter the measurement.
@@ -828,7 +794,7 @@ fn general_temperature(
                 s.push((m[0] * d[0] + m[1] * d[1] + m[2] * d[2]) / n);
             }
         }
-        counter.sweep_done();
+        counter.unit_done();
     }
     let Some(th) = series.thermodynamics(temperature_kelvin) else {
         return Err(format!(

@@ -7,7 +7,7 @@
 //! worker thread.
 
 use serde::{Deserialize, Serialize};
-use std::sync::atomic::{AtomicBool, Ordering};
+use std::sync::atomic::{AtomicBool, AtomicU64, Ordering};
 use std::sync::Arc;
 
 /// A shared "please stop" flag. Cloning shares the flag.
@@ -71,6 +71,47 @@ pub type ProgressFn<'a> = &'a (dyn Fn(&Progress) + Sync);
 
 /// A callback that ignores progress, for callers that do not display it.
 pub fn ignore_progress(_: &Progress) {}
+
+/// Progress of a run whose work is counted in units (sweeps) done by several
+/// threads at once: an atomic counter reported about every 0.5 % of the work,
+/// so the number of reports is deterministic and independent of timing.
+pub struct SharedProgress<'a> {
+    label: &'static str,
+    done: AtomicU64,
+    total: u64,
+    step: u64,
+    report: ProgressFn<'a>,
+}
+
+impl<'a> SharedProgress<'a> {
+    /// Starts counting `total` units and reports 0 done at once.
+    pub fn start(label: &'static str, total: u64, report: ProgressFn<'a>) -> Self {
+        report(&Progress {
+            label: label.to_string(),
+            done: 0,
+            total,
+        });
+        SharedProgress {
+            label,
+            done: AtomicU64::new(0),
+            total,
+            step: (total / 200).max(1),
+            report,
+        }
+    }
+
+    /// One unit of work finished (any thread).
+    pub fn unit_done(&self) {
+        let done = self.done.fetch_add(1, Ordering::Relaxed) + 1;
+        if done.is_multiple_of(self.step) || done == self.total {
+            (self.report)(&Progress {
+                label: self.label.to_string(),
+                done,
+                total: self.total,
+            });
+        }
+    }
+}
 
 #[cfg(test)]
 mod tests {

@@ -3,7 +3,7 @@
 //! Every fit minimises `χ² = Σ_i ((y_i − f(x_i; p))/σ_i)²` with the
 //! Levenberg–Marquardt method (Levenberg, Q. Appl. Math. 2, 164 (1944);
 //! Marquardt, J. SIAM 11, 431 (1963); MINPACK's trust-region form, Moré,
-//! Lecture Notes in Math. 630, 105 (1978), as implemented by the
+//! Springer LNM 630, 105 (1978), as implemented by the
 //! `levenberg-marquardt` crate). Standard errors come from the Jacobian `J`
 //! of the weighted residuals at the optimum, `cov = (JᵀJ)⁻¹`, used as it is
 //! when the caller gives σ ("absolute" errors) and multiplied by `χ²/dof`

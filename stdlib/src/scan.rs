@@ -10,7 +10,7 @@
 //! `interrupted = true`; a temperature whose measurement was still running is
 //! dropped rather than reported with fewer samples than asked for.
 
-use crate::control::{Interrupt, Progress, ProgressFn};
+use crate::control::{Interrupt, ProgressFn, SharedProgress};
 use crate::hamiltonian::NearestNeighbourIce;
 use crate::lattice::{LatticeError, Pyrochlore};
 use crate::metropolis::{NearestNeighbourMetropolis, Start};
@@ -20,7 +20,6 @@ use crate::rng::RngStreams;
 use rayon::prelude::*;
 use serde::{Deserialize, Serialize};
 use std::fmt;
-use std::sync::atomic::{AtomicU64, Ordering};
 
 /// What to simulate.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
@@ -200,28 +199,6 @@ impl ScanSettings {
 /// Label of scan progress reports.
 pub const PROGRESS_LABEL: &str = "temperature scan";
 
-/// Shared progress bookkeeping: an atomic sweep counter, reported about
-/// every 0.5 % of the work (deterministic, independent of timing).
-struct ProgressCounter<'a> {
-    done: AtomicU64,
-    total: u64,
-    step: u64,
-    report: ProgressFn<'a>,
-}
-
-impl ProgressCounter<'_> {
-    fn sweep_done(&self) {
-        let done = self.done.fetch_add(1, Ordering::Relaxed) + 1;
-        if done.is_multiple_of(self.step) || done == self.total {
-            (self.report)(&Progress {
-                label: PROGRESS_LABEL.to_string(),
-                done,
-                total: self.total,
-            });
-        }
-    }
-}
-
 /// Run a temperature scan (see the module documentation for interrupts and
 /// reproducibility).
 pub fn run_scan(
@@ -232,17 +209,7 @@ pub fn run_scan(
     settings.validate()?;
     let lat = Pyrochlore::new(settings.cells_per_side)?;
     let total = settings.total_sweeps();
-    let counter = ProgressCounter {
-        done: AtomicU64::new(0),
-        total,
-        step: (total / 200).max(1),
-        report: progress,
-    };
-    (counter.report)(&Progress {
-        label: PROGRESS_LABEL.to_string(),
-        done: 0,
-        total,
-    });
+    let counter = SharedProgress::start(PROGRESS_LABEL, total, progress);
     let streams = RngStreams::new(settings.seed);
     let outcomes: Vec<Option<ScanPoint>> = settings
         .temperatures_kelvin
@@ -274,7 +241,7 @@ fn simulate_temperature(
     temperature_kelvin: f64,
     rng: crate::rng::SpinRng,
     interrupt: &Interrupt,
-    counter: &ProgressCounter,
+    counter: &SharedProgress,
 ) -> Option<ScanPoint> {
     if interrupt.is_requested() {
         return None;
@@ -291,7 +258,7 @@ fn simulate_temperature(
             return None;
         }
         engine.sweep();
-        counter.sweep_done();
+        counter.unit_done();
     }
     let mut series = ThermodynamicSeries::new(lat.spin_count(), lat.tetrahedron_count());
     let mut accepted = 0u64;
@@ -313,7 +280,7 @@ fn simulate_temperature(
                 double_charges: charges.double,
             });
         }
-        counter.sweep_done();
+        counter.unit_done();
     }
     let th = series.thermodynamics(temperature_kelvin)?;
     Some(ScanPoint {
@@ -336,7 +303,7 @@ fn simulate_temperature(
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::control::ignore_progress;
+    use crate::control::{ignore_progress, Progress};
     use std::sync::Mutex;
 
     fn settings() -> ScanSettings {
