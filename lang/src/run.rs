@@ -802,21 +802,12 @@ fn general_temperature(
             format_number(temperature_kelvin)
         ));
     };
-    let point = ScanPoint {
+    let point = ScanPoint::from_thermodynamics(
         temperature_kelvin,
-        energy_per_spin_kelvin: th.energy_per_spin_kelvin,
-        specific_heat_per_spin: th.specific_heat_per_spin,
-        magnetisation_per_spin: th.magnetisation_per_spin,
-        susceptibility_per_spin: th.susceptibility_per_spin,
-        single_charge_density: th.single_charge_density,
-        double_charge_density: th.double_charge_density,
-        monopole_density_per_spin: th.monopole_density_per_spin,
-        acceptance_rate: accepted as f64 / attempted.max(1) as f64,
-        samples: th.samples,
-        integrated_autocorrelation_sweeps: th.energy_autocorrelation_samples
-            * settings.sample_every_sweeps as f64,
-        errors_converged: th.blocking_converged,
-    };
+        &th,
+        accepted as f64 / attempted.max(1) as f64,
+        settings.sample_every_sweeps,
+    );
     Ok(Some(ScanRecord {
         point,
         magnetisation_along: along.and_then(|s| s.estimate()),

@@ -15,7 +15,7 @@ use crate::hamiltonian::NearestNeighbourIce;
 use crate::lattice::{LatticeError, Pyrochlore};
 use crate::metropolis::{NearestNeighbourMetropolis, Start};
 pub use crate::observe::Estimate;
-use crate::observe::{Sample, ThermodynamicSeries};
+use crate::observe::{Sample, ThermodynamicSeries, Thermodynamics};
 use crate::rng::RngStreams;
 use rayon::prelude::*;
 use serde::{Deserialize, Serialize};
@@ -70,6 +70,33 @@ pub struct ScanPoint {
     /// Whether the energy error bars reached a blocking plateau; `false`
     /// means the run is short compared with the correlation time.
     pub errors_converged: bool,
+}
+
+impl ScanPoint {
+    /// The point a run at `temperature_kelvin` reports from its estimates; every
+    /// scan driver (nearest-neighbour or coupling-table) builds its points here.
+    pub fn from_thermodynamics(
+        temperature_kelvin: f64,
+        th: &Thermodynamics,
+        acceptance_rate: f64,
+        sample_every_sweeps: u64,
+    ) -> Self {
+        ScanPoint {
+            temperature_kelvin,
+            energy_per_spin_kelvin: th.energy_per_spin_kelvin,
+            specific_heat_per_spin: th.specific_heat_per_spin,
+            magnetisation_per_spin: th.magnetisation_per_spin,
+            susceptibility_per_spin: th.susceptibility_per_spin,
+            single_charge_density: th.single_charge_density,
+            double_charge_density: th.double_charge_density,
+            monopole_density_per_spin: th.monopole_density_per_spin,
+            acceptance_rate,
+            samples: th.samples,
+            integrated_autocorrelation_sweeps: th.energy_autocorrelation_samples
+                * sample_every_sweeps as f64,
+            errors_converged: th.blocking_converged,
+        }
+    }
 }
 
 /// A finished (or interrupted) scan.
@@ -283,21 +310,12 @@ fn simulate_temperature(
         counter.unit_done();
     }
     let th = series.thermodynamics(temperature_kelvin)?;
-    Some(ScanPoint {
+    Some(ScanPoint::from_thermodynamics(
         temperature_kelvin,
-        energy_per_spin_kelvin: th.energy_per_spin_kelvin,
-        specific_heat_per_spin: th.specific_heat_per_spin,
-        magnetisation_per_spin: th.magnetisation_per_spin,
-        susceptibility_per_spin: th.susceptibility_per_spin,
-        single_charge_density: th.single_charge_density,
-        double_charge_density: th.double_charge_density,
-        monopole_density_per_spin: th.monopole_density_per_spin,
-        acceptance_rate: accepted as f64 / attempted.max(1) as f64,
-        samples: th.samples,
-        integrated_autocorrelation_sweeps: th.energy_autocorrelation_samples
-            * settings.sample_every_sweeps as f64,
-        errors_converged: th.blocking_converged,
-    })
+        &th,
+        accepted as f64 / attempted.max(1) as f64,
+        settings.sample_every_sweeps,
+    ))
 }
 
 #[cfg(test)]
