@@ -64,6 +64,8 @@ pub enum Value {
         span: Span,
     },
     Word(Ident),
+    /// `lab.tau`: a column of a table.
+    Column(ColumnRef),
 }
 
 impl Value {
@@ -74,6 +76,7 @@ impl Value {
                 *span
             }
             Value::Word(ident) => ident.span,
+            Value::Column(c) => c.span,
         }
     }
 }
@@ -168,6 +171,32 @@ impl Expr {
     }
 }
 
+/// One item of a command's phrase: `evolve for 10 ms at 0.4 K` is the connective `for`,
+/// the value `10 ms`, the connective `at`, the value `0.4 K`.
+#[derive(Clone, Debug, PartialEq)]
+pub enum Arg {
+    /// A connecting word: `for`, `at`, `with`, `over`, `from`, `to`, `against`, `along`,
+    /// `in`, `steps`, `through`, `on`, `of`, `by`, `within`.
+    Connective(Ident),
+    Value(Value),
+}
+
+impl Arg {
+    pub fn span(&self) -> Span {
+        match self {
+            Arg::Connective(word) => word.span,
+            Arg::Value(value) => value.span(),
+        }
+    }
+    /// The connecting word, if this is one.
+    pub fn connective(&self) -> Option<&str> {
+        match self {
+            Arg::Connective(word) => Some(word.name.as_str()),
+            Arg::Value(_) => None,
+        }
+    }
+}
+
 /// One statement of a cell.
 #[derive(Clone, Debug, PartialEq)]
 pub enum StatementKind {
@@ -211,6 +240,13 @@ pub enum StatementKind {
     },
     /// `export thermo to "thermo.csv"`
     Export { name: Ident, path: (String, Span) },
+    /// `[NAME =] KEYWORD PHRASE... [, options]`: the command statements (`evolve`, `fit`,
+    /// `import`, ...); `Statement::keyword` is the command word. See `commands`.
+    Command {
+        target: Option<Ident>,
+        args: Vec<Arg>,
+        options: Vec<Opt>,
+    },
 }
 
 #[derive(Clone, Debug, PartialEq)]

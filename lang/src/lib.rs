@@ -20,6 +20,7 @@
 
 pub mod ast;
 pub mod check;
+pub mod commands;
 pub mod complete;
 pub mod diagnostic;
 pub mod display;
@@ -170,6 +171,11 @@ impl Session {
     /// The workspace (model declaration, tables, figures).
     pub fn workspace(&self) -> &Workspace {
         &self.workspace
+    }
+
+    /// The workspace, to change: for tools and tests that put values in directly.
+    pub fn workspace_mut(&mut self) -> &mut Workspace {
+        &mut self.workspace
     }
 }
 

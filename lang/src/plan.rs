@@ -8,7 +8,9 @@ use icefield_stdlib::metropolis::Start;
 use icefield_stdlib::scan::ScanSettings;
 
 use crate::ast::Span;
-use crate::check::{Checked, CheckedStatement, ColumnSpec, PlotSpec, ShowTarget, StartState};
+use crate::check::{
+    Checked, CheckedStatement, ColumnSpec, CommandSpec, PlotSpec, ShowTarget, StartState,
+};
 use crate::diagnostic::{ErrorKind, Problem};
 use crate::measures::Measure;
 use crate::workspace::{CouplingsDecl, FieldDecl, LatticeDecl, Model, DEFAULT_SEED};
@@ -74,6 +76,11 @@ pub enum Plan {
     Export {
         name: String,
         path: String,
+    },
+    /// A command, with the model declaration in force when it runs.
+    Command {
+        spec: CommandSpec,
+        model: Box<Model>,
     },
 }
 
@@ -194,6 +201,15 @@ pub fn compile(checked: &[CheckedStatement], model: &Model) -> Result<Vec<Step>,
                 name: name.clone(),
                 path: path.clone(),
             },
+            // Until every family has a command, `CommandSpec` has no values at all.
+            #[allow(unreachable_code)]
+            Checked::Command(spec) => {
+                spec.declare(&mut model);
+                Plan::Command {
+                    spec: spec.clone(),
+                    model: Box::new(model.clone()),
+                }
+            }
         };
         steps.push(Step {
             plan,

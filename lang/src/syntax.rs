@@ -9,6 +9,7 @@ use pest::iterators::Pair;
 use pest::Parser;
 
 use crate::ast::*;
+use crate::commands;
 use crate::diagnostic::{did_you_mean, ErrorKind, Problem};
 use crate::grammar::{describe, IcefieldParser, Rule};
 
@@ -271,7 +272,18 @@ fn all_statement_words() -> impl Iterator<Item = &'static str> {
     KEYWORDS
         .iter()
         .copied()
+        .chain(commands::keywords())
         .chain(PLANNED_KEYWORDS.iter().map(|(k, _)| *k))
+}
+
+/// Whether `word` starts a statement this version runs.
+pub fn is_statement_word(word: &str) -> bool {
+    KEYWORDS.contains(&word) || commands::is_command(word)
+}
+
+/// Keywords whose result can be stored with `NAME = ...`.
+fn has_result(word: &str) -> bool {
+    word == "scan" || word == "plot" || commands::is_command(word)
 }
 
 /// The "planned" message for a keyword of the designed language, if it is one.
@@ -352,7 +364,7 @@ fn failed_hint(source: &str, piece: Piece) -> Failed {
     let mut target = None;
     if let Some((word, _, end)) = &first {
         let after = skip_spaces(text, *end);
-        if text[after..].starts_with('=') && !KEYWORDS.contains(&word.as_str()) {
+        if text[after..].starts_with('=') && !is_statement_word(word) {
             target = Some(word.clone());
             keyword = word_at(text, after + 1).map(|w| w.0).unwrap_or_default();
         } else if word == "column" {
@@ -389,12 +401,12 @@ fn parse_piece(source: &str, piece: Piece) -> Result<Statement, Problem> {
         ));
     };
     let word_span = Span::new(piece.start + ws, piece.start + we);
-    if !KEYWORDS.contains(&word.as_str()) {
+    if !is_statement_word(&word) {
         let after = skip_spaces(text, we);
         let is_assignment = text[after..].starts_with('=') && !text[after..].starts_with("==");
         if is_assignment {
             match word_at(text, after + 1) {
-                Some((rhs, rs, re)) if rhs != "scan" && rhs != "plot" => {
+                Some((rhs, rs, re)) if !has_result(&rhs) => {
                     let span = Span::new(piece.start + rs, piece.start + re);
                     if let Some(message) = planned(&rhs) {
                         return Err(Problem::new(ErrorKind::NotImplemented, span, message));
@@ -403,7 +415,7 @@ fn parse_piece(source: &str, piece: Piece) -> Result<Statement, Problem> {
                         return Err(Problem::new(
                             ErrorKind::Syntax,
                             span,
-                            format!("`{rhs}` has no result to name; only `scan` and `plot` results can be stored with `{word} = ...`"),
+                            format!("`{rhs}` has no result to name; only the results of `scan`, `plot` and commands such as `evolve` can be stored with `{word} = ...`"),
                         ));
                     }
                     return Err(Problem::new(
@@ -412,8 +424,11 @@ fn parse_piece(source: &str, piece: Piece) -> Result<Statement, Problem> {
                         format!("unknown statement `{rhs}` after `{word} =`"),
                     )
                     .with_help_opt(
-                        did_you_mean(&rhs, ["scan", "plot"])
-                            .or(Some("expected `scan` or `plot`".to_string())),
+                        did_you_mean(
+                            &rhs,
+                            ["scan", "plot"].into_iter().chain(commands::keywords()),
+                        )
+                        .or(Some("expected `scan`, `plot` or a command".to_string())),
                     ));
                 }
                 _ => {}
@@ -588,6 +603,7 @@ fn value(pair: Pair<Rule>, offset: usize) -> Value {
             span,
         },
         Rule::ident => Value::Word(ident(pair, offset)),
+        Rule::dotted_ref => Value::Column(column_ref(pair, offset)),
         Rule::list => {
             let mut items = Vec::new();
             let mut unit = None;
@@ -769,9 +785,9 @@ fn build_statement(pair: Pair<Rule>, offset: usize) -> Statement {
         };
         statement.span = span;
         match &mut statement.kind {
-            StatementKind::Scan { target: t, .. } | StatementKind::Plot { target: t, .. } => {
-                *t = target
-            }
+            StatementKind::Scan { target: t, .. }
+            | StatementKind::Plot { target: t, .. }
+            | StatementKind::Command { target: t, .. } => *t = target,
             _ => {}
         }
         return statement;
@@ -969,6 +985,29 @@ fn build_statement(pair: Pair<Rule>, offset: usize) -> Statement {
                 }
             }
             StatementKind::Export { name, path }
+        }
+        Rule::command_stmt => {
+            let options = take_options(&mut rest);
+            let args = rest
+                .into_iter()
+                .filter(|p| p.as_rule() == Rule::command_arg)
+                .filter_map(|p| p.into_inner().next())
+                .map(|p| match p.as_rule() {
+                    Rule::connective => {
+                        let word = p.into_inner().next();
+                        Arg::Connective(match word {
+                            Some(w) => ident(w, offset),
+                            None => blank.clone(),
+                        })
+                    }
+                    _ => Arg::Value(value(p, offset)),
+                })
+                .collect();
+            StatementKind::Command {
+                target: None,
+                args,
+                options,
+            }
         }
         _ => StatementKind::Seed {
             value: empty_number(span),

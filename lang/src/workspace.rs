@@ -1,6 +1,8 @@
 //! The workspace: named values that persist across cells (the model declaration, result
 //! tables, figures). Everything here is serde-serialisable so a session can be saved.
 
+use icefield_stdlib::dynamics::AcceptanceRule;
+use icefield_stdlib::gating::AttemptTimes;
 use serde::{Deserialize, Serialize};
 
 use icefield_stdlib::exchange::{CouplingConvention, ExchangeCouplings, ZeemanField};
@@ -178,6 +180,44 @@ pub struct Model {
     pub seed: Option<u64>,
     /// The measures a scan records; `None`: all of them.
     pub measures: Option<Vec<Measure>>,
+    /// The dynamics rule for physical-time runs, if one was declared.
+    #[serde(default)]
+    pub dynamics: Option<DynamicsDecl>,
+}
+
+/// How a physical-time run is executed (both simulate the same process).
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
+pub enum ExecutionChoice {
+    /// The tool picks (rejection-free where the energy changes are discrete and flips
+    /// are rare) and says which it used.
+    Auto,
+    AttemptBased,
+    RejectionFree,
+}
+
+/// Where the transverse field that gates a spin comes from.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
+pub enum TransverseSource {
+    /// The six nearest neighbours (four |h⊥| classes, physics-reference §5).
+    Neighbours,
+    /// The full dipolar sum (a what-if; the rate law is applied to its magnitude).
+    Dipolar,
+}
+
+/// The dynamics rule: how spins flip in physical time (`dynamics ...`).
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct DynamicsDecl {
+    pub acceptance: AcceptanceRule,
+    /// Attempt time per gate class (uniform rates: the same τ0 for all four).
+    pub attempt_times: AttemptTimes,
+    /// How the rates were given, for `show model` and provenance
+    /// ("uniform, τ0 = 1 µs", "bimodal, slow/fast = 10⁴", "law tau_of_h").
+    pub rates_description: String,
+    pub execution: ExecutionChoice,
+    pub transverse: TransverseSource,
+    /// The rhai rate law `|h⊥| ↦ attempt time` when the rates were given by one (the
+    /// dipolar what-if evaluates it on a continuous |h⊥|).
+    pub rate_law: Option<String>,
 }
 
 /// The seed a run uses when none was declared.

@@ -7,13 +7,21 @@
 
 use icefield_stdlib::lattice;
 
+pub mod analysis;
+pub mod data;
+pub mod dynamics;
+pub mod equilibrium;
+pub mod monopoles;
+pub mod percolation;
+
 use crate::ast::*;
+use crate::commands::{self, Family};
 use crate::diagnostic::{did_you_mean, ErrorKind, Problem};
 use crate::measures::{Measure, MEASURES, PLANNED_MEASURES, TEMPERATURE_COLUMN, TEMPERATURE_UNIT};
 use crate::script::{Script, BUILTIN_FUNCTIONS};
 use crate::units::{self, Dimension};
 use crate::workspace::{
-    CouplingsDecl, CouplingsUpdate, FieldDecl, LatticeDecl, LatticeKind, Value as WsValue,
+    CouplingsDecl, CouplingsUpdate, FieldDecl, LatticeDecl, LatticeKind, Model, Value as WsValue,
     Workspace, RESERVED_SHOW_NAMES,
 };
 use icefield_stdlib::engine::FlipRule;
@@ -174,6 +182,34 @@ pub enum Checked {
         name: String,
         path: String,
     },
+    /// A command statement, resolved by its family's checker.
+    Command(CommandSpec),
+}
+
+/// A resolved command, by family (see `commands`).
+#[derive(Clone, Debug, PartialEq)]
+pub enum CommandSpec {
+    Dynamics(dynamics::DynamicsSpec),
+    Monopoles(monopoles::MonopolesSpec),
+    Analysis(analysis::AnalysisSpec),
+    Data(data::DataSpec),
+    Percolation(percolation::PercolationSpec),
+    Equilibrium(equilibrium::EquilibriumSpec),
+}
+
+impl CommandSpec {
+    /// What the command changes in the model declaration (a dynamics rule, say), applied
+    /// when the cell is planned so that later statements of the cell see it.
+    pub fn declare(&self, model: &mut Model) {
+        match self {
+            CommandSpec::Dynamics(spec) => spec.declare(model),
+            CommandSpec::Monopoles(_)
+            | CommandSpec::Analysis(_)
+            | CommandSpec::Data(_)
+            | CommandSpec::Percolation(_)
+            | CommandSpec::Equilibrium(_) => {}
+        }
+    }
 }
 
 #[derive(Clone, Debug, PartialEq)]
@@ -649,6 +685,27 @@ impl<'a> Checker<'a> {
                 unit,
             } => self.column(target, expr, expr_text, unit.as_ref(), view),
             StatementKind::Export { name, path } => self.export(name, path, view),
+            StatementKind::Command {
+                target,
+                args,
+                options,
+            } => {
+                let target = target.as_ref();
+                match commands::family(&statement.keyword.name)? {
+                    Family::Dynamics => self.check_dynamics(statement, target, args, options, view),
+                    Family::Monopoles => {
+                        self.check_monopoles(statement, target, args, options, view)
+                    }
+                    Family::Analysis => self.check_analysis(statement, target, args, options, view),
+                    Family::Data => self.check_data(statement, target, args, options, view),
+                    Family::Percolation => {
+                        self.check_percolation(statement, target, args, options, view)
+                    }
+                    Family::Equilibrium => {
+                        self.check_equilibrium(statement, target, args, options, view)
+                    }
+                }
+            }
         }
     }
 

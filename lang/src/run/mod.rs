@@ -26,7 +26,7 @@ use icefield_stdlib::rng::{RngStreams, SpinRng};
 use icefield_stdlib::scan::{run_scan, ScanPoint, ScanSettings, PROGRESS_LABEL};
 
 use crate::ast::Span;
-use crate::check::{ColumnSpec, PlotSpec, Scale, ShowTarget, Style};
+use crate::check::{ColumnSpec, CommandSpec, PlotSpec, Scale, ShowTarget, Style};
 use crate::diagnostic::{CellError, ErrorKind, Problem};
 use crate::display::{self, header};
 use crate::measures::{
@@ -35,8 +35,15 @@ use crate::measures::{
 use crate::plan::{GeneralModel, Plan, ScanEngine, ScanStep, Step};
 use crate::script::Script;
 use crate::units::format_number;
-use crate::workspace::{Column, Figure, FigureSeries, Provenance, Table, Value, Workspace};
+use crate::workspace::{Column, Figure, FigureSeries, Model, Provenance, Table, Value, Workspace};
 use crate::Output;
+
+mod analysis;
+mod data;
+mod dynamics;
+mod equilibrium;
+mod monopoles;
+mod percolation;
 
 /// Progress updates are sent at most this often (a few per second).
 pub const PROGRESS_INTERVAL: Duration = Duration::from_millis(250);
@@ -54,6 +61,29 @@ fn error_at(source: &str, kind: ErrorKind, span: Span, message: impl Into<String
 }
 
 impl Runner<'_> {
+    /// Runs a command by its family (see `commands`).
+    fn command(
+        &mut self,
+        spec: &CommandSpec,
+        model: &Model,
+        span: Span,
+        keyword: Span,
+        emit: &mut dyn FnMut(Output),
+    ) -> Result<(), CellError> {
+        match spec {
+            CommandSpec::Dynamics(spec) => self.run_dynamics(spec, model, span, keyword, emit),
+            CommandSpec::Monopoles(spec) => self.run_monopoles(spec, model, span, keyword, emit),
+            CommandSpec::Analysis(spec) => self.run_analysis(spec, model, span, keyword, emit),
+            CommandSpec::Data(spec) => self.run_data(spec, model, span, keyword, emit),
+            CommandSpec::Percolation(spec) => {
+                self.run_percolation(spec, model, span, keyword, emit)
+            }
+            CommandSpec::Equilibrium(spec) => {
+                self.run_equilibrium(spec, model, span, keyword, emit)
+            }
+        }
+    }
+
     pub fn run(&mut self, steps: Vec<Step>, emit: &mut dyn FnMut(Output)) -> Result<(), CellError> {
         for step in steps {
             if self.interrupt.is_requested() {
@@ -113,6 +143,9 @@ impl Runner<'_> {
             }
             Plan::Column(column) => self.column(&column, emit)?,
             Plan::Export { name, path } => self.export(&name, &path, step.span, emit)?,
+            Plan::Command { spec, model } => {
+                self.command(&spec, &model, step.span, step.keyword, emit)?
+            }
         }
         Ok(())
     }
