@@ -110,7 +110,7 @@ def test_run_error_reports_location_and_fails(icefield_bin: str, tmp_path: Path)
     result = subprocess.run([icefield_bin, "run", str(script)], capture_output=True, text=True, timeout=60)
     assert result.returncode == 1
     assert "NameError" in result.stderr
-    assert "cell:4:6" in result.stderr, result.stderr  # line 4, column 6 (derived)
+    assert f"{script}:4:6" in result.stderr, result.stderr  # line 4, column 6 of the file (derived)
     assert result.stdout == ""
 
 

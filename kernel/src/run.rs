@@ -117,8 +117,11 @@ pub fn report_error(script: &Path, error: &CellError, stderr: &mut dyn Write) {
         error.kind,
         error.message
     );
+    // The whole script is one cell, so the cell's line and column are the file's.
+    let pointer = format!("--> {}:", script.display());
     for diagnostic in &error.diagnostics {
-        let _ = writeln!(stderr, "{}", diagnostic.rendered.trim_end());
+        let rendered = diagnostic.rendered.replacen("--> cell:", &pointer, 1);
+        let _ = writeln!(stderr, "{}", rendered.trim_end());
         if let Some(help) = &diagnostic.help {
             if !diagnostic.rendered.contains(help.as_str()) {
                 let _ = writeln!(stderr, "help: {help}");
