@@ -1,6 +1,7 @@
 //! Completion, inspection targets and the completeness test a console uses to decide
 //! whether Enter runs the cell. All positions count Unicode code points.
 
+use crate::check::analysis;
 use crate::check::{
     ACCEPTANCE_RULES, COUPLING_KINDS, DIPOLAR_OPTIONS, EXCHANGE_OPTIONS, FIELD_OPTIONS,
     LATTICE_KINDS, LATTICE_OPTIONS, NEAREST_OPTIONS, PLOT_OPTIONS, SCAN_OPTIONS, START_STATES,
@@ -8,7 +9,6 @@ use crate::check::{
 };
 use crate::measures::MEASURES;
 use crate::script::BUILTIN_FUNCTIONS;
-use crate::check::analysis;
 use crate::syntax::{split, KEYWORDS};
 use crate::units::UNITS;
 use crate::workspace::{Workspace, RESERVED_SHOW_NAMES};
@@ -245,9 +245,10 @@ pub fn complete(
                     let (words, options): (&[&str], &[&str]) = match keyword {
                         "spectrum" => (&["against"], analysis::SPECTRUM_OPTIONS),
                         "autocorrelation" => (&["against"], analysis::AUTOCORRELATION_OPTIONS),
-                        "susceptibility" => {
-                            (&["at", "against", "from", "to"], analysis::SUSCEPTIBILITY_OPTIONS)
-                        }
+                        "susceptibility" => (
+                            &["at", "against", "from", "to"],
+                            analysis::SUSCEPTIBILITY_OPTIONS,
+                        ),
                         _ => (
                             &["against", "with", "over", "from", "to"],
                             analysis::FIT_OPTIONS,

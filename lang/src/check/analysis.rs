@@ -26,7 +26,13 @@ pub const AUTOCORRELATION_OPTIONS: &[&str] = &["max_lag", "normalisation"];
 pub const SUSCEPTIBILITY_OPTIONS: &[&str] = &["points", "max_lag"];
 pub const FIT_OPTIONS: &[&str] = &["errors"];
 /// The fit models of `fit ... with MODEL`.
-pub const FIT_MODELS: &[&str] = &["power_law", "exp", "stretched_exp", "noise_form", "arrhenius"];
+pub const FIT_MODELS: &[&str] = &[
+    "power_law",
+    "exp",
+    "stretched_exp",
+    "noise_form",
+    "arrhenius",
+];
 pub const WINDOWS: &[&str] = &["hann", "hamming", "rectangular"];
 pub const DETRENDS: &[&str] = &["constant", "linear", "none"];
 pub const NORMALISATIONS: &[&str] = &["biased", "unbiased"];
@@ -679,7 +685,10 @@ impl Checker<'_> {
             self.push(Problem::new(
                 ErrorKind::Value,
                 q.span,
-                format!("{what} must be at least 0 and below 1, not {}", q.number.text),
+                format!(
+                    "{what} must be at least 0 and below 1, not {}",
+                    q.number.text
+                ),
             ));
             return None;
         }
@@ -776,9 +785,7 @@ impl Checker<'_> {
             AxisUnit::Known { dimension, .. } => {
                 self.convert(q, None, *dimension, &format!("{what} of the band"), false)
             }
-            AxisUnit::Pure => {
-                self.convert(q, None, Dimension::Dimensionless, what, false)
-            }
+            AxisUnit::Pure => self.convert(q, None, Dimension::Dimensionless, what, false),
             AxisUnit::Text(text) => self.free_unit_edge(q, text, what),
         }
     }
@@ -973,7 +980,10 @@ impl Checker<'_> {
             self.push(
                 Problem::new(
                     ErrorKind::Value,
-                    phrase.get("from").map(|(w, _)| w.span).unwrap_or(series.span),
+                    phrase
+                        .get("from")
+                        .map(|(w, _)| w.span)
+                        .unwrap_or(series.span),
                     "a band is written `over X from A to B`",
                 )
                 .with_help(format!("write `over {} from ...`", series.x_column)),

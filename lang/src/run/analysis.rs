@@ -22,8 +22,8 @@ use icefield_stdlib::spectra::{
 use super::{error_at, Runner};
 use crate::ast::Span;
 use crate::check::analysis::{
-    parameter_units, squared_unit_per, AnalysisSpec, AutocorrelationSpec, Band, FitModel,
-    FitSpec, SeriesRef, SpectrumSpec, SusceptibilitySpec, FIGURE_SUFFIX, TAU_SUFFIX,
+    parameter_units, squared_unit_per, AnalysisSpec, AutocorrelationSpec, Band, FitModel, FitSpec,
+    SeriesRef, SpectrumSpec, SusceptibilitySpec, FIGURE_SUFFIX, TAU_SUFFIX,
 };
 use crate::diagnostic::{CellError, ErrorKind};
 use crate::display::{self, format_with_error};
@@ -123,11 +123,7 @@ impl Runner<'_> {
             return Err(self.fail(
                 ErrorKind::Value,
                 series.x_span,
-                format!(
-                    "`{}` is not a number at row {}",
-                    series.x_label(),
-                    row + 1
-                ),
+                format!("`{}` is not a number at row {}", series.x_label(), row + 1),
             ));
         }
         let step = (data.x[n - 1] - data.x[0]) / (n - 1) as f64;
@@ -239,7 +235,13 @@ impl Runner<'_> {
             &format!("power spectral density of {}", series.label()),
             ("f", "Hz", AxisScale::Log),
             ("psd", &psd_unit, AxisScale::Log),
-            vec![data_series(&series.label(), fx, fy, None, SeriesStyle::Line)],
+            vec![data_series(
+                &series.label(),
+                fx,
+                fy,
+                None,
+                SeriesStyle::Line,
+            )],
             series.span,
         )?;
         emit(Output::Display(display::figure(&figure)));
@@ -334,7 +336,10 @@ impl Runner<'_> {
             &spec.target,
             Value::Table(Table {
                 name: spec.target.clone(),
-                columns: vec![column("lag", &unit, lag.clone()), column("C", "", c.clone())],
+                columns: vec![
+                    column("lag", &unit, lag.clone()),
+                    column("C", "", c.clone()),
+                ],
                 provenance: provenance.clone(),
             }),
         );
@@ -593,7 +598,10 @@ impl Runner<'_> {
             .then_some(ss.as_slice());
         let needed = spec.model.parameters().len() + 1;
         if xs.len() < needed {
-            let span = spec.band.as_ref().map_or(series.span, |b| b.low_span.to(b.high_span));
+            let span = spec
+                .band
+                .as_ref()
+                .map_or(series.span, |b| b.low_span.to(b.high_span));
             return Err(self.fail(
                 ErrorKind::Value,
                 span,
@@ -602,7 +610,11 @@ impl Runner<'_> {
                     spec.model.name(),
                     xs.len(),
                     series.label(),
-                    if spec.band.is_some() { "lie in the band" } else { "can be used" }
+                    if spec.band.is_some() {
+                        "lie in the band"
+                    } else {
+                        "can be used"
+                    }
                 ),
             ));
         }
@@ -620,13 +632,19 @@ impl Runner<'_> {
             self.fail(
                 ErrorKind::Value,
                 series.span,
-                format!("the `{}` fit of `{}` failed: {e}", spec.model.name(), series.label()),
+                format!(
+                    "the `{}` fit of `{}` failed: {e}",
+                    spec.model.name(),
+                    series.label()
+                ),
             )
         })?;
         let parameters = reported_parameters(spec.model, &result);
         let units = parameter_units(spec.model, &series.unit, &x_unit);
         let mut columns = Vec::new();
-        for ((name, (value, error)), unit) in spec.model.parameters().iter().zip(&parameters).zip(&units) {
+        for ((name, (value, error)), unit) in
+            spec.model.parameters().iter().zip(&parameters).zip(&units)
+        {
             columns.push(column(name, unit, vec![*value]));
             columns.push(column(&format!("{name}_error"), unit, vec![*error]));
         }
@@ -651,7 +669,8 @@ impl Runner<'_> {
             columns,
             provenance: derived_provenance(&data.provenance, &source),
         };
-        self.workspace.insert(&spec.target, Value::Table(table.clone()));
+        self.workspace
+            .insert(&spec.target, Value::Table(table.clone()));
         emit(Output::Display(display::table(&table, None)));
         // The figure: the data, and the fitted curve over the points used.
         let log_x = spec.model.needs_positive_x() && spec.model != FitModel::Arrhenius;
@@ -671,7 +690,13 @@ impl Runner<'_> {
             .collect();
         let (key, (value, error)) = legend_parameter(spec.model, &parameters);
         let legend = format!("fit: {key} = {}", format_with_error(value, error));
-        let scale = |log: bool| if log { AxisScale::Log } else { AxisScale::Linear };
+        let scale = |log: bool| {
+            if log {
+                AxisScale::Log
+            } else {
+                AxisScale::Linear
+            }
+        };
         let figure = self.figure(
             &spec.target,
             &format!("{formula}{}", band_text.clone().unwrap_or_default()),
@@ -690,13 +715,21 @@ impl Runner<'_> {
             band = band_text.unwrap_or_default(),
             points = xs.len(),
             skipped = if non_positive > 0 {
-                format!(" ({non_positive} at {} ≤ 0 left out of the log fit)", series.x_column)
+                format!(
+                    " ({non_positive} at {} ≤ 0 left out of the log fit)",
+                    series.x_column
+                )
             } else {
                 String::new()
             },
         );
-        for ((name, (value, error)), unit) in spec.model.parameters().iter().zip(&parameters).zip(&units) {
-            text.push_str(&format!("  {name} = {}\n", with_error_unit(*value, *error, unit)));
+        for ((name, (value, error)), unit) in
+            spec.model.parameters().iter().zip(&parameters).zip(&units)
+        {
+            text.push_str(&format!(
+                "  {name} = {}\n",
+                with_error_unit(*value, *error, unit)
+            ));
         }
         text.push_str(&format!(
             "  χ²/dof = {} (dof {}; {}){}\n",
