@@ -247,13 +247,13 @@ pub struct FitSpec {
     pub use_errors: bool,
 }
 
-/// A resolved analysis command.
+/// A resolved analysis command (boxed: the specs are large beside other families').
 #[derive(Clone, Debug, PartialEq)]
 pub enum AnalysisSpec {
-    Spectrum(SpectrumSpec),
-    Autocorrelation(AutocorrelationSpec),
-    Susceptibility(SusceptibilitySpec),
-    Fit(FitSpec),
+    Spectrum(Box<SpectrumSpec>),
+    Autocorrelation(Box<AutocorrelationSpec>),
+    Susceptibility(Box<SusceptibilitySpec>),
+    Fit(Box<FitSpec>),
 }
 
 impl AnalysisSpec {
@@ -353,16 +353,16 @@ impl Checker<'_> {
         let spec = match keyword {
             "spectrum" => self
                 .spectrum(&phrase, &options, view)
-                .map(AnalysisSpec::Spectrum),
+                .map(|s| AnalysisSpec::Spectrum(Box::new(s))),
             "autocorrelation" => self
                 .autocorrelation(&phrase, &options, view)
-                .map(AnalysisSpec::Autocorrelation),
+                .map(|s| AnalysisSpec::Autocorrelation(Box::new(s))),
             "susceptibility" => self
                 .susceptibility(statement, &phrase, &options, view)
-                .map(AnalysisSpec::Susceptibility),
+                .map(|s| AnalysisSpec::Susceptibility(Box::new(s))),
             _ => self
                 .fit(statement, &phrase, &options, view)
-                .map(AnalysisSpec::Fit),
+                .map(|s| AnalysisSpec::Fit(Box::new(s))),
         };
         if self.problems.len() > before {
             return None;

@@ -127,7 +127,7 @@ impl Runner<'_> {
             ));
         }
         let step = (data.x[n - 1] - data.x[0]) / (n - 1) as f64;
-        if !(step > 0.0) {
+        if step.is_nan() || step <= 0.0 {
             return Err(self.fail(
                 ErrorKind::Value,
                 series.x_span,
