@@ -28,7 +28,12 @@ pub enum Family {
 }
 
 /// Runnable command keywords and their family.
-pub const COMMANDS: &[(&str, Family)] = &[];
+pub const COMMANDS: &[(&str, Family)] = &[
+    ("spectrum", Family::Analysis),
+    ("autocorrelation", Family::Analysis),
+    ("susceptibility", Family::Analysis),
+    ("fit", Family::Analysis),
+];
 
 /// The family of a runnable command keyword.
 pub fn family(keyword: &str) -> Option<Family> {

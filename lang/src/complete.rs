@@ -1,6 +1,7 @@
 //! Completion, inspection targets and the completeness test a console uses to decide
 //! whether Enter runs the cell. All positions count Unicode code points.
 
+use crate::check::analysis;
 use crate::check::{
     ACCEPTANCE_RULES, COUPLING_KINDS, DIPOLAR_OPTIONS, EXCHANGE_OPTIONS, FIELD_OPTIONS,
     LATTICE_KINDS, LATTICE_OPTIONS, NEAREST_OPTIONS, PLOT_OPTIONS, SCAN_OPTIONS, START_STATES,
@@ -95,6 +96,9 @@ fn values_for(option: &str) -> &'static [&'static str] {
         "errors" => &["on", "off"],
         "convention" => &["vector", "ising"],
         "acceptance" => ACCEPTANCE_RULES,
+        "window" => analysis::WINDOWS,
+        "detrend" => analysis::DETRENDS,
+        "normalisation" => analysis::NORMALISATIONS,
         _ => &[],
     }
 }
@@ -167,6 +171,7 @@ pub fn complete(
         };
         if trimmed.is_empty() {
             push_all(&mut candidates, KEYWORDS.iter().copied());
+            push_all(&mut candidates, crate::commands::keywords());
             push_all(&mut candidates, names.iter().map(String::as_str));
         } else if after_number {
             push_all(&mut candidates, UNITS.iter().map(|u| u.symbol));
@@ -228,8 +233,33 @@ pub fn complete(
                     push_all(&mut candidates, ["unit"]);
                 }
                 "column" => push_all(&mut candidates, table_names.iter().map(String::as_str)),
+                "fit" if words.last() == Some(&"with") => {
+                    push_all(&mut candidates, analysis::FIT_MODELS.iter().copied())
+                }
+                "spectrum" | "autocorrelation" | "susceptibility" | "fit"
+                    if statement_words.len() == 1 =>
+                {
+                    push_all(&mut candidates, table_names.iter().map(String::as_str))
+                }
+                "spectrum" | "autocorrelation" | "susceptibility" | "fit" => {
+                    let (words, options): (&[&str], &[&str]) = match keyword {
+                        "spectrum" => (&["against"], analysis::SPECTRUM_OPTIONS),
+                        "autocorrelation" => (&["against"], analysis::AUTOCORRELATION_OPTIONS),
+                        "susceptibility" => (
+                            &["at", "against", "from", "to"],
+                            analysis::SUSCEPTIBILITY_OPTIONS,
+                        ),
+                        _ => (
+                            &["against", "with", "over", "from", "to"],
+                            analysis::FIT_OPTIONS,
+                        ),
+                    };
+                    push_all(&mut candidates, words.iter().copied());
+                    push_all(&mut candidates, options.iter().copied());
+                }
                 _ => {
                     push_all(&mut candidates, KEYWORDS.iter().copied());
+                    push_all(&mut candidates, crate::commands::keywords());
                     push_all(&mut candidates, names.iter().map(String::as_str));
                     push_all(&mut candidates, MEASURES.iter().map(|m| m.name));
                     push_all(&mut candidates, functions.iter().map(String::as_str));

@@ -39,7 +39,6 @@ pub const PLANNED_KEYWORDS: &[(&str, &str)] = &[
     ("quench", "Runs"),
     ("step", "Runs"),
     ("map", "Plots"),
-    ("fit", "Fits"),
     ("import", "Data import and export"),
 ];
 

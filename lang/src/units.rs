@@ -29,6 +29,8 @@ pub enum Dimension {
     Length,
     /// Magnetic moment, base unit Bohr magneton.
     Moment,
+    /// Frequency, base unit hertz (spectra, fit bands).
+    Frequency,
     /// A pure number (counts, ratios).
     Dimensionless,
 }
@@ -42,6 +44,7 @@ impl Dimension {
             Dimension::Time => "a time",
             Dimension::Length => "a length",
             Dimension::Moment => "a magnetic moment",
+            Dimension::Frequency => "a frequency",
             Dimension::Dimensionless => "a pure number",
         }
     }
@@ -53,6 +56,7 @@ impl Dimension {
             Dimension::Time => "s",
             Dimension::Length => "Å",
             Dimension::Moment => "µB",
+            Dimension::Frequency => "Hz",
             Dimension::Dimensionless => "",
         }
     }
@@ -64,6 +68,7 @@ impl Dimension {
             Dimension::Time => "s, ms, µs, ns",
             Dimension::Length => "Å, nm",
             Dimension::Moment => "µB",
+            Dimension::Frequency => "Hz, kHz, MHz",
             Dimension::Dimensionless => "none",
         }
     }
@@ -214,6 +219,30 @@ pub const UNITS: &[UnitDef] = &[
         to_base: 1.0,
         description: "Bohr magneton (ASCII spelling of µB)",
     },
+    UnitDef {
+        symbol: "Hz",
+        dimension: Dimension::Frequency,
+        to_base: 1.0,
+        description: "hertz (frequency)",
+    },
+    UnitDef {
+        symbol: "mHz",
+        dimension: Dimension::Frequency,
+        to_base: 1e-3,
+        description: "millihertz, 10⁻³ Hz",
+    },
+    UnitDef {
+        symbol: "kHz",
+        dimension: Dimension::Frequency,
+        to_base: 1e3,
+        description: "kilohertz, 10³ Hz",
+    },
+    UnitDef {
+        symbol: "MHz",
+        dimension: Dimension::Frequency,
+        to_base: 1e6,
+        description: "megahertz, 10⁶ Hz",
+    },
 ];
 
 /// Replaces the Greek small mu (U+03BC) by the micro sign (U+00B5) so both spellings match,
@@ -254,6 +283,9 @@ pub fn unknown_unit_help(symbol: &str) -> Option<String> {
                 ("ev", "eV"),
                 ("mev", "meV"),
                 ("angstroms", "Å"),
+                ("hz", "Hz"),
+                ("hertz", "Hz"),
+                ("khz", "kHz"),
             ];
             let lower = symbol.to_lowercase();
             NAMES

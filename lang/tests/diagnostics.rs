@@ -193,7 +193,6 @@ fn planned_statements_say_so() {
             "mh = scan B from 0 T to 1 T in 20 steps",
             "NotImplementedError",
         ),
-        ("fit noise.spectrum with power_law", "NotImplementedError"),
     ] {
         let error = match session.prepare(code) {
             Ok(_) => panic!("{code} should fail"),

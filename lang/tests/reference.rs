@@ -32,6 +32,39 @@ fn example_blocks(markdown: &str) -> Vec<String> {
         .collect()
 }
 
+/// The tables the examples of §9 name: a time series `noise` (t [s], M [μ]), a spectrum
+/// `spec`, an autocorrelation `acf` and relaxation times `taus` (only their columns matter:
+/// the examples are checked, not run).
+fn analysis_tables(session: &mut Session) {
+    use icefield_lang::workspace::{Column, Table, Value};
+    let tables: [(&str, [(&str, &str); 2]); 4] = [
+        ("noise", [("t", "s"), ("M", "μ")]),
+        ("spec", [("f", "Hz"), ("psd", "μ²/Hz")]),
+        ("acf", [("lag", "s"), ("C", "")]),
+        ("taus", [("T", "K"), ("tau", "s")]),
+    ];
+    for (name, columns) in tables {
+        let columns = columns
+            .iter()
+            .map(|(column, unit)| Column {
+                name: column.to_string(),
+                unit: unit.to_string(),
+                values: vec![1.0, 2.0, 3.0],
+                errors: None,
+                derived_from: None,
+            })
+            .collect();
+        session.workspace_mut().insert(
+            name,
+            Value::Table(Table {
+                name: name.to_string(),
+                columns,
+                provenance: None,
+            }),
+        );
+    }
+}
+
 #[test]
 fn reference_examples_check_or_are_marked_planned() {
     let reference =
@@ -43,6 +76,7 @@ fn reference_examples_check_or_are_marked_planned() {
         &mut session,
         &format!("{TINY_MODEL}thermo = scan T at [1, 2] K, sweeps = 40, equilibrate = 10\ncool = scan T at [1, 2] K, sweeps = 40, equilibrate = 10"),
     );
+    analysis_tables(&mut session);
     let mut checked = 0;
     for block in &blocks {
         let parts = split(block);

@@ -426,6 +426,7 @@ fn unit_phrase(dimension: Dimension, temperature: bool) -> String {
         Dimension::Time => "a time unit",
         Dimension::Length => "a length unit",
         Dimension::Moment => "a moment unit",
+        Dimension::Frequency => "a frequency unit",
         Dimension::Dimensionless => "no unit",
     };
     format!("{noun}: {}", dimension.suggested_units())
@@ -509,6 +510,7 @@ impl<'a> Checker<'a> {
                                     Dimension::Time => "a time",
                                     Dimension::Length => "a length",
                                     Dimension::Moment => "a magnetic-moment",
+                                    Dimension::Frequency => "a frequency",
                                     Dimension::Dimensionless => "a dimensionless",
                                 }
                             ),
