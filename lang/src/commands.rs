@@ -28,7 +28,12 @@ pub enum Family {
 }
 
 /// Runnable command keywords and their family.
-pub const COMMANDS: &[(&str, Family)] = &[];
+pub const COMMANDS: &[(&str, Family)] = &[
+    ("dynamics", Family::Dynamics),
+    ("evolve", Family::Dynamics),
+    ("quench", Family::Dynamics),
+    ("step", Family::Dynamics),
+];
 
 /// The family of a runnable command keyword.
 pub fn family(keyword: &str) -> Option<Family> {
