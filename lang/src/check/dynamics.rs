@@ -71,9 +71,9 @@ pub const TIME_SERIES_COLUMNS: &[(&str, &str)] = &[
 #[derive(Clone, Debug, PartialEq)]
 pub enum DynamicsSpec {
     /// `dynamics single_flip, ...`: the rule later runs use.
-    Rule(RuleSpec),
+    Rule(Box<RuleSpec>),
     /// `evolve`, `quench`, `step`: a physical-time run.
-    Protocol(ProtocolSpec),
+    Protocol(Box<ProtocolSpec>),
 }
 
 /// A checked `dynamics` statement.
@@ -224,10 +224,10 @@ impl Checker<'_> {
     ) -> Option<Checked> {
         let spec = if statement.keyword.name == "dynamics" {
             self.dynamics_rule(statement, target, args, options, view)
-                .map(DynamicsSpec::Rule)
+                .map(|rule| DynamicsSpec::Rule(Box::new(rule)))
         } else {
             self.protocol(statement, target, args, options, view)
-                .map(DynamicsSpec::Protocol)
+                .map(|protocol| DynamicsSpec::Protocol(Box::new(protocol)))
         };
         spec.map(|spec| Checked::Command(CommandSpec::Dynamics(spec)))
     }
