@@ -444,3 +444,24 @@ fn an_interrupt_keeps_the_partial_series() {
     );
     assert!(labels.iter().any(|l| l.contains("t = ")), "{labels:?}");
 }
+
+#[test]
+fn completion_and_help_know_the_dynamics_words() {
+    let session = Session::new();
+    let code = "dynamics single_flip, acceptance = ";
+    let matches = session.complete(code, code.chars().count()).matches;
+    assert!(matches.contains(&"glauber".to_string()), "{matches:?}");
+    assert!(!matches.contains(&"heat_bath".to_string()), "{matches:?}");
+    let code = "dynamics single_flip, ex";
+    let matches = session.complete(code, code.chars().count()).matches;
+    assert_eq!(matches, ["execution"]);
+    let code = "noise = ev";
+    let matches = session.complete(code, code.chars().count()).matches;
+    assert!(matches.contains(&"evolve".to_string()), "{matches:?}");
+    let help = session.inspect("evolve", 2).expect("help for evolve");
+    assert!(help.contains("sample_every"), "{help}");
+    let help = session
+        .inspect("dynamics single_flip, law = f", 24)
+        .unwrap();
+    assert!(help.contains("once per class"), "{help}");
+}
