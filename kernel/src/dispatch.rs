@@ -549,11 +549,9 @@ impl<'m> CellOutputs<'m> {
     /// `transient.display_id`, then advanced in place with `update_display_data`.
     fn progress_update(&mut self, progress: Progress, out: &mut dyn Outlet) {
         let now = Instant::now();
-        match self
-            .progress
-            .iter_mut()
-            .find(|p| p.latest.label == progress.label)
-        {
+        match self.progress.iter_mut().find(|p| {
+            mime::progress_identity(&p.latest.label) == mime::progress_identity(&progress.label)
+        }) {
             None => {
                 let display_id = format!("icefield-progress-{}", uuid::Uuid::new_v4());
                 out.publish(

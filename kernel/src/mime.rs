@@ -44,6 +44,15 @@ fn fraction_done(progress: &Progress) -> f64 {
     }
 }
 
+/// The part of a progress label that names the run: the text before " — ". What follows
+/// is detail that changes while the run goes (simulated time, time left; see
+/// `PROGRESS_DETAIL_SEPARATOR` in lang's `run/dynamics.rs`), so one run keeps one bar.
+pub fn progress_identity(label: &str) -> &str {
+    label
+        .split_once(" — ")
+        .map_or(label, |(identity, _)| identity)
+}
+
 /// One-line text progress bar, e.g. `scan: [#######-------] 3/6 (50%)`.
 pub fn progress_text(progress: &Progress) -> String {
     let fraction = fraction_done(progress);
@@ -125,6 +134,18 @@ mod tests {
         let mut r = rendering(None, None);
         r.record = Value::Null;
         assert!(rendering_bundle(&r).get(RECORD_JSON).is_none());
+    }
+
+    #[test]
+    fn a_progress_label_keeps_its_identity_while_its_detail_changes() {
+        assert_eq!(
+            progress_identity("noise: evolve — t = 1 ms of 10 ms, about 3 s left"),
+            "noise: evolve"
+        );
+        assert_eq!(
+            progress_identity("thermo: temperature scan"),
+            "thermo: temperature scan"
+        );
     }
 
     #[test]

@@ -227,7 +227,10 @@ impl ProgressLine {
         let finished = progress.done >= progress.total;
         let due = match &self.last {
             None => true,
-            Some((at, last)) => last.label != progress.label || now.duration_since(*at) >= interval,
+            Some((at, last)) => {
+                mime::progress_identity(&last.label) != mime::progress_identity(&progress.label)
+                    || now.duration_since(*at) >= interval
+            }
         };
         if due || finished {
             let text = mime::progress_text(progress);

@@ -33,6 +33,10 @@ pub const COMMANDS: &[(&str, Family)] = &[
     ("autocorrelation", Family::Analysis),
     ("susceptibility", Family::Analysis),
     ("fit", Family::Analysis),
+    ("dynamics", Family::Dynamics),
+    ("evolve", Family::Dynamics),
+    ("quench", Family::Dynamics),
+    ("step", Family::Dynamics),
 ];
 
 /// The family of a runnable command keyword.

@@ -2,6 +2,10 @@
 //! whether Enter runs the cell. All positions count Unicode code points.
 
 use crate::check::analysis;
+use crate::check::dynamics::{
+    DYNAMICS_ACCEPTANCE_RULES, DYNAMICS_OPTIONS, DYNAMICS_RULES, EVOLVE_OPTIONS, EXECUTION_CHOICES,
+    QUENCH_OPTIONS, RATE_KINDS, STEP_OPTIONS, TRANSVERSE_SOURCES,
+};
 use crate::check::{
     ACCEPTANCE_RULES, COUPLING_KINDS, DIPOLAR_OPTIONS, EXCHANGE_OPTIONS, FIELD_OPTIONS,
     LATTICE_KINDS, LATTICE_OPTIONS, NEAREST_OPTIONS, PLOT_OPTIONS, SCAN_OPTIONS, START_STATES,
@@ -99,7 +103,19 @@ fn values_for(option: &str) -> &'static [&'static str] {
         "window" => analysis::WINDOWS,
         "detrend" => analysis::DETRENDS,
         "normalisation" => analysis::NORMALISATIONS,
+        "rates" => RATE_KINDS,
+        "execution" => EXECUTION_CHOICES,
+        "transverse" => TRANSVERSE_SOURCES,
+        "slow" => &["frozen"],
         _ => &[],
+    }
+}
+
+/// Values of an option of a given statement, where they differ from `values_for`.
+fn values_in(keyword: &str, option: &str) -> &'static [&'static str] {
+    match (keyword, option) {
+        ("dynamics", "acceptance") => DYNAMICS_ACCEPTANCE_RULES,
+        _ => values_for(option),
     }
 }
 
@@ -175,8 +191,10 @@ pub fn complete(
             push_all(&mut candidates, names.iter().map(String::as_str));
         } else if after_number {
             push_all(&mut candidates, UNITS.iter().map(|u| u.symbol));
-        } else if let Some(option) = option_before_equals.filter(|o| !values_for(o).is_empty()) {
-            push_all(&mut candidates, values_for(option).iter().copied());
+        } else if let Some(option) =
+            option_before_equals.filter(|o| !values_in(keyword, o).is_empty())
+        {
+            push_all(&mut candidates, values_in(keyword, option).iter().copied());
         } else {
             match keyword {
                 "measure" => push_all(&mut candidates, MEASURES.iter().map(|m| m.name)),
@@ -193,6 +211,24 @@ pub fn complete(
                     _ => push_all(&mut candidates, NEAREST_OPTIONS.iter().copied()),
                 },
                 "field" => push_all(&mut candidates, FIELD_OPTIONS.iter().copied()),
+                "dynamics" if statement_words.len() == 1 => {
+                    push_all(&mut candidates, DYNAMICS_RULES.iter().copied())
+                }
+                "dynamics" => push_all(&mut candidates, DYNAMICS_OPTIONS.iter().copied()),
+                "evolve" => {
+                    push_all(&mut candidates, EVOLVE_OPTIONS.iter().copied());
+                    push_all(&mut candidates, ["for", "at"]);
+                }
+                "quench" if statement_words.len() == 1 => push_all(&mut candidates, ["B"]),
+                "quench" => {
+                    push_all(&mut candidates, QUENCH_OPTIONS.iter().copied());
+                    push_all(&mut candidates, ["from", "along", "to", "at", "for"]);
+                }
+                "step" if statement_words.len() == 1 => push_all(&mut candidates, ["T"]),
+                "step" => {
+                    push_all(&mut candidates, STEP_OPTIONS.iter().copied());
+                    push_all(&mut candidates, ["from", "to", "for"]);
+                }
                 "scan" if statement_words.len() == 1 => push_all(&mut candidates, ["T"]),
                 "scan" => {
                     push_all(&mut candidates, SCAN_OPTIONS.iter().copied());

@@ -67,6 +67,11 @@ fn escape_html(text: &str) -> String {
 /// One-line description of where a table came from.
 pub fn provenance_line(table: &Table) -> String {
     match &table.provenance {
+        Some(p) if p.kinetics.is_some() => p
+            .kinetics
+            .as_ref()
+            .map(|k| k.line(p, table.row_count()))
+            .unwrap_or_default(),
         Some(p) => {
             let mut text = format!(
                 "{}; {}; {}; seed {}; {} sweeps (after {} to equilibrate) per temperature",

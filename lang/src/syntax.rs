@@ -32,12 +32,8 @@ pub const KEYWORDS: &[&str] = &[
 /// Statement keywords of the designed language that later versions run (REFERENCE.md),
 /// with the section that describes them.
 pub const PLANNED_KEYWORDS: &[(&str, &str)] = &[
-    ("dynamics", "Dynamics"),
     ("equilibrate", "Runs"),
     ("anneal", "Runs"),
-    ("evolve", "Runs"),
-    ("quench", "Runs"),
-    ("step", "Runs"),
     ("map", "Plots"),
     ("import", "Data import and export"),
 ];

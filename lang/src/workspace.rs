@@ -2,7 +2,7 @@
 //! tables, figures). Everything here is serde-serialisable so a session can be saved.
 
 use icefield_stdlib::dynamics::AcceptanceRule;
-use icefield_stdlib::gating::AttemptTimes;
+use icefield_stdlib::gating::{AttemptTimes, GATE_CLASS_MAGNITUDES};
 use serde::{Deserialize, Serialize};
 
 use icefield_stdlib::exchange::{CouplingConvention, ExchangeCouplings, ZeemanField};
@@ -220,6 +220,44 @@ pub struct DynamicsDecl {
     pub rate_law: Option<String>,
 }
 
+impl DynamicsDecl {
+    /// One line for `show model` and provenance: "single-flip, Metropolis, uniform τ0 = 1 µs".
+    pub fn describe(&self) -> String {
+        let acceptance = match self.acceptance {
+            AcceptanceRule::Metropolis => "Metropolis",
+            AcceptanceRule::Glauber => "Glauber",
+        };
+        let mut text = format!("single-flip, {acceptance}, {}", self.rates_description);
+        if self.transverse == TransverseSource::Dipolar {
+            text.push_str(", h⊥ from the dipolar sum");
+        }
+        text.push_str(match self.execution {
+            ExecutionChoice::Auto => ", execution auto",
+            ExecutionChoice::AttemptBased => ", execution attempt-based",
+            ExecutionChoice::RejectionFree => ", execution rejection-free",
+        });
+        text
+    }
+
+    /// The attempt time of each gate class, one line per class, for the output of a
+    /// `dynamics` statement (so a rate law can be checked against what the run uses).
+    pub fn attempt_table(&self) -> String {
+        let mut text = String::from("  gate class   |h⊥|/|g|   attempt time\n");
+        for (class, (magnitude, time)) in GATE_CLASS_MAGNITUDES
+            .iter()
+            .zip(self.attempt_times.attempt_time_seconds)
+            .enumerate()
+        {
+            text.push_str(&format!(
+                "  {class:<12} {:<10} {}\n",
+                crate::units::format_number((magnitude * 1e6).round() / 1e6),
+                format_seconds(time)
+            ));
+        }
+        text
+    }
+}
+
 /// The seed a run uses when none was declared.
 pub const DEFAULT_SEED: u64 = 1;
 
@@ -252,6 +290,78 @@ pub struct Provenance {
     pub interrupted: bool,
     /// The cell (execution number in this session) that made it.
     pub cell: u64,
+    /// For a physical-time run (`evolve`, `quench`, `step`): what ran, in its own terms
+    /// (the sweep and temperature counts above do not describe it).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub kinetics: Option<KineticsProvenance>,
+}
+
+/// Provenance of a physical-time run: protocol, dynamics rule, execution, temperature.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct KineticsProvenance {
+    /// The protocol as run ("evolve for 10 ms at 0.4 K").
+    pub protocol: String,
+    /// The dynamics rule (`DynamicsDecl::describe`).
+    pub dynamics: String,
+    /// The execution used and why ("rejection-free (auto: ...)").
+    pub execution: String,
+    /// Temperature of the recording (K).
+    pub temperature_kelvin: f64,
+    /// Length of the recording asked for (s).
+    pub duration_seconds: f64,
+    /// Spacing of the time grid (s).
+    pub sample_interval_seconds: f64,
+    /// Samples asked for; fewer rows means the run was interrupted.
+    pub samples_requested: u64,
+    /// Flips during the recording.
+    pub flips: u64,
+}
+
+impl KineticsProvenance {
+    /// The provenance line of a kinetics table with `rows` samples.
+    pub fn line(&self, provenance: &Provenance, rows: usize) -> String {
+        let mut text = format!(
+            "{}; {}; {}; seed {}; dynamics {}; execution {}; start {}; {} flips",
+            self.protocol,
+            provenance.lattice,
+            provenance.model,
+            provenance.seed,
+            self.dynamics,
+            self.execution,
+            provenance.start,
+            self.flips
+        );
+        if provenance.interrupted {
+            text.push_str(&format!(
+                "; INTERRUPTED: {rows} of {} samples (t up to {} of {})",
+                self.samples_requested,
+                format_seconds(rows.saturating_sub(1) as f64 * self.sample_interval_seconds),
+                format_seconds(self.duration_seconds)
+            ));
+        }
+        text
+    }
+}
+
+/// A time with the prefix that keeps the number readable: "1 µs", "10 ms", "2.5 s";
+/// an infinite attempt time reads "frozen".
+pub fn format_seconds(seconds: f64) -> String {
+    if seconds.is_infinite() && seconds > 0.0 {
+        return "frozen".to_string();
+    }
+    let magnitude = seconds.abs();
+    let (scale, unit) = if magnitude == 0.0 || magnitude >= 1.0 {
+        (1.0, "s")
+    } else if magnitude >= 1e-3 {
+        (1e3, "ms")
+    } else if magnitude >= 1e-6 {
+        (1e6, "µs")
+    } else if magnitude >= 1e-9 {
+        (1e9, "ns")
+    } else {
+        (1e12, "ps")
+    };
+    format!("{} {unit}", crate::units::format_number(seconds * scale))
 }
 
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]

@@ -181,7 +181,6 @@ fn out_of_range_values_are_refused() {
 fn planned_statements_say_so() {
     let session = Session::new();
     for (code, kind) in [
-        ("evolve for 10 µs", "NotImplementedError"),
         ("relax = anneal T from 2 K to 0.1 K", "NotImplementedError"),
         ("lattice square_ice L = 8", "NotImplementedError"),
         ("measure structure_factor", "NotImplementedError"),

@@ -82,8 +82,11 @@ fn reference_examples_check_or_are_marked_planned() {
         let parts = split(block);
         for piece in parts.pieces {
             let statement = &block[piece.start..piece.end];
-            if statement.trim_start().starts_with("rhai") {
-                // Run rhai blocks so the functions they define exist for later examples.
+            if statement.trim_start().starts_with("rhai")
+                || statement.trim_start().starts_with("dynamics")
+            {
+                // Run rhai blocks so the functions they define exist for later examples,
+                // and dynamics rules so the runs of §5.2 have one (neither simulates).
                 ok(&mut session, statement);
                 checked += 1;
                 continue;

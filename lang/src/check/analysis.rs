@@ -341,7 +341,7 @@ impl Checker<'_> {
             "susceptibility" => &["at", "against", "from", "to"],
             _ => &["against", "with", "over", "from", "to"],
         };
-        let phrase = self.phrase(statement, args, allowed);
+        let phrase = self.analysis_phrase(statement, args, allowed);
         let allowed_options = match keyword {
             "spectrum" => SPECTRUM_OPTIONS,
             "autocorrelation" => AUTOCORRELATION_OPTIONS,
@@ -374,7 +374,7 @@ impl Checker<'_> {
     }
 
     /// Splits the phrase into its column and `(word, value)` pairs.
-    fn phrase<'a>(
+    fn analysis_phrase<'a>(
         &mut self,
         statement: &Statement,
         args: &'a [Arg],

@@ -249,6 +249,8 @@ struct View {
     variables: Vec<String>,
     /// A rhai block of the cell failed to parse: accept unknown functions and variables.
     lenient_script: bool,
+    /// A dynamics rule is declared (physical-time runs need one).
+    dynamics: bool,
 }
 
 impl View {
@@ -291,6 +293,7 @@ impl View {
             functions: script.functions(),
             variables: script.variables(),
             lenient_script: false,
+            dynamics: workspace.model.dynamics.is_some(),
         }
     }
     fn get(&self, name: &str) -> Option<&NameView> {
@@ -318,6 +321,7 @@ impl View {
             "couplings" => self.couplings = true,
             "field" => self.field_direction = true,
             "rhai" => self.lenient_script = true,
+            "dynamics" => self.dynamics = true,
             "column" => {
                 if let Some((table, column)) =
                     failed.target.as_ref().and_then(|t| t.split_once('.'))

@@ -973,6 +973,7 @@ pub fn scan_table(scan: &ScanStep, result: &ScanOutcome, cell: u64) -> Table {
             temperatures_requested: settings.temperatures_kelvin.len(),
             interrupted: result.interrupted,
             cell,
+            kinetics: None,
         }),
     }
 }
@@ -1038,6 +1039,9 @@ pub fn describe_model(workspace: &Workspace) -> String {
     ));
     if let Some(field) = &model.field {
         text.push_str(&format!("  field:     {}\n", field.describe()));
+    }
+    if let Some(dynamics) = &model.dynamics {
+        text.push_str(&format!("  dynamics:  {}\n", dynamics.describe()));
     }
     text.push_str(&format!(
         "  seed:      {}\n",
