@@ -28,7 +28,10 @@ pub enum Family {
 }
 
 /// Runnable command keywords and their family.
-pub const COMMANDS: &[(&str, Family)] = &[];
+pub const COMMANDS: &[(&str, Family)] = &[
+    ("anneal", Family::Equilibrium),
+    ("structure_factor", Family::Equilibrium),
+];
 
 /// The family of a runnable command keyword.
 pub fn family(keyword: &str) -> Option<Family> {

@@ -92,7 +92,7 @@ fn values_for(option: &str) -> &'static [&'static str] {
         "spacing" | "xscale" | "yscale" => &["linear", "log"],
         "start" => START_STATES,
         "style" => &["line", "points", "both"],
-        "errors" => &["on", "off"],
+        "errors" | "tempering" => &["on", "off"],
         "convention" => &["vector", "ising"],
         "acceptance" => ACCEPTANCE_RULES,
         _ => &[],
@@ -188,8 +188,8 @@ pub fn complete(
                     _ => push_all(&mut candidates, NEAREST_OPTIONS.iter().copied()),
                 },
                 "field" => push_all(&mut candidates, FIELD_OPTIONS.iter().copied()),
-                "scan" if statement_words.len() == 1 => push_all(&mut candidates, ["T"]),
-                "scan" => {
+                "scan" | "anneal" if statement_words.len() == 1 => push_all(&mut candidates, ["T"]),
+                "scan" | "anneal" => {
                     push_all(&mut candidates, SCAN_OPTIONS.iter().copied());
                     push_all(&mut candidates, ["from", "to", "in", "steps", "at"]);
                 }

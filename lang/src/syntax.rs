@@ -34,7 +34,6 @@ pub const KEYWORDS: &[&str] = &[
 pub const PLANNED_KEYWORDS: &[(&str, &str)] = &[
     ("dynamics", "Dynamics"),
     ("equilibrate", "Runs"),
-    ("anneal", "Runs"),
     ("evolve", "Runs"),
     ("quench", "Runs"),
     ("step", "Runs"),
