@@ -556,6 +556,39 @@ mod tests {
     }
 
     #[test]
+    fn diagnostics_of_an_ar1_series_give_its_exact_tau_int() {
+        // x_t = ρ x_{t−1} + ε_t has ρ(t) = ρ^t, so τ_int = ½ + ρ/(1 − ρ) = (1 + ρ)/(2(1 − ρ))
+        // (exact); ρ = 0.8 gives 4.5 samples, i.e. 9 sweeps at 2 sweeps per sample.
+        use rand::Rng;
+        let mut rng = crate::rng::RngStreams::new(3).stream(0);
+        let rho = 0.8;
+        let mut x = 0.0f64;
+        let mut series = BinnedSeries::new();
+        for _ in 0..60_000 {
+            // Box–Muller normal variate.
+            let (u, v): (f64, f64) = (rng.gen::<f64>().max(1e-300), rng.gen());
+            let noise = (-2.0 * u.ln()).sqrt() * (2.0 * std::f64::consts::PI * v).cos();
+            x = rho * x + noise;
+            series.push(x);
+        }
+        let d = series.diagnostics(2).unwrap();
+        assert!((d.tau_int_sweeps - 9.0).abs() < 1.0, "{d:?}");
+        assert!(d.tau_window_converged);
+        // A stationary series shows no drift beyond 4σ, and 60000 samples are ≫ 50 τ_int.
+        assert!(d.drift_sigma.abs() < 4.0, "{d:?}");
+        assert!(d.concern(60_000 * 2).is_none());
+        // A run of 400 sweeps is shorter than 50 τ_int = 450 sweeps.
+        assert!(d.concern(400).unwrap().contains("50 τ_int"));
+        // A ramp drifts (derived: the halves' means differ by many errors).
+        let mut ramp = BinnedSeries::new();
+        for i in 0..4000 {
+            ramp.push(i as f64 * 1e-3 + ((i * 7919) % 13) as f64 * 1e-4);
+        }
+        let r = ramp.diagnostics(1).unwrap();
+        assert!(r.drift_sigma > 10.0 && r.concern(4000).is_some(), "{r:?}");
+    }
+
+    #[test]
     fn invalid_settings_are_clear_errors() {
         let check = |edit: &dyn Fn(&mut ScanSettings), expected: ScanError, words: &str| {
             let mut s = settings();
