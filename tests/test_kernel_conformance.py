@@ -30,7 +30,7 @@ class IcefieldKernelTests(jupyter_kernel_test.KernelTests):
     code_hello_world = 'rhai { print("hello, world") }'
 
     completion_samples = [
-        {"text": "measure specific_h", "matches": {"specific_heat"}},
+        {"text": "measure specific_h", "matches": {"specific_heat", "specific_heat_molar"}},
         {"text": "lattice pyro", "matches": {"pyrochlore"}},
         # workspace names complete too
         {"text": "show ther", "matches": {"thermo"}},

@@ -37,6 +37,8 @@ pub const COMMANDS: &[(&str, Family)] = &[
     ("evolve", Family::Dynamics),
     ("quench", Family::Dynamics),
     ("step", Family::Dynamics),
+    ("anneal", Family::Equilibrium),
+    ("structure_factor", Family::Equilibrium),
 ];
 
 /// The family of a runnable command keyword.

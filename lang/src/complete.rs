@@ -97,7 +97,7 @@ fn values_for(option: &str) -> &'static [&'static str] {
         "spacing" | "xscale" | "yscale" => &["linear", "log"],
         "start" => START_STATES,
         "style" => &["line", "points", "both"],
-        "errors" => &["on", "off"],
+        "errors" | "tempering" => &["on", "off"],
         "convention" => &["vector", "ising"],
         "acceptance" => ACCEPTANCE_RULES,
         "window" => analysis::WINDOWS,
@@ -229,8 +229,8 @@ pub fn complete(
                     push_all(&mut candidates, STEP_OPTIONS.iter().copied());
                     push_all(&mut candidates, ["from", "to", "for"]);
                 }
-                "scan" if statement_words.len() == 1 => push_all(&mut candidates, ["T"]),
-                "scan" => {
+                "scan" | "anneal" if statement_words.len() == 1 => push_all(&mut candidates, ["T"]),
+                "scan" | "anneal" => {
                     push_all(&mut candidates, SCAN_OPTIONS.iter().copied());
                     push_all(&mut candidates, ["from", "to", "in", "steps", "at"]);
                 }

@@ -2,18 +2,20 @@
 //! shown by `Session::inspect` (Shift-Tab in a notebook).
 
 use crate::display::{header, provenance_line};
-use crate::measures::MEASURES;
+use crate::measures::{DIAGNOSTIC_COLUMNS, EXCHANGE_COLUMN, MEASURES};
 use crate::syntax::planned;
 use crate::workspace::{Value, Workspace};
 
 /// Help for statement keywords and connecting words.
 pub const KEYWORD_HELP: &[(&str, &str)] = &[
-    ("lattice", "lattice KIND L = N\n  Declares the lattice: `pyrochlore` (16 L³ spins, L×L×L periodic conventional cubic cells).\n  Example: lattice pyrochlore L = 4"),
+    ("lattice", "lattice KIND L = N\n  Declares the lattice: `pyrochlore` (16 L³ spins, L×L×L periodic conventional cubic cells) or\n  `square_ice` (2D six-vertex ice, L×L vertices, 2L² spins; H = J Σ q², J from `couplings nearest J_eff`).\n  Example: lattice pyrochlore L = 4"),
     ("couplings", "couplings nearest J_eff = E | J1 = E [, convention = vector|ising] [, D = E]\n  Declares the nearest-neighbour spin-ice model H = J_eff Σ⟨ij⟩ σiσj.\n  J_eff is the σσ coefficient; J1 is read in the vector convention (J_nn = −J1/3) unless\n  convention = ising; D adds the nearest-neighbour part of the dipolar sum, 5D/3.\n  Example: couplings nearest J_eff = 1.8 K\ncouplings exchange J1 = E [, J2 = E, J3 = E, J3' = E, convention = vector|ising]\ncouplings dipolar D = E | moment = M µB, r_nn = R Å\n  A general model: exchange shells and the Ewald-summed dipolar term (conducting boundary).\n  `exchange` and `dipolar` statements add up; `nearest` starts over.\n  Example: couplings dipolar moment = 10 µB, r_nn = 3.54 Å"),
     ("field", "field B = MAGNITUDE along [h, k, l], moment = M µB\n  A Zeeman term −μ Σ S·B (μ in µB, B in T). Later scans run on the coupling-table engine and\n  record `magnetisation_along`, the magnetisation per spin along the field direction.\n  Example: field B = 0.5 T along [1, 1, 1], moment = 10 µB"),
     ("seed", "seed N\n  Seeds every random stream of later runs (a whole number). The same seed gives the same numbers.\n  Example: seed 20261201"),
     ("measure", "measure NAME, NAME, ...\n  Chooses what later scans record (default: every measure). See `show measures`.\n  Example: measure energy, specific_heat, monopole_density"),
     ("scan", "NAME = scan T from A to B in N steps [, sweeps = S, equilibrate = E, sample_every = K, spacing = linear|log, start = random|ice|all_in_all_out]\nNAME = scan T at [T1, T2, ...] K [, ...]\n  Equilibrium scan of the declared model; stores a table NAME with T and one column per measure.\n  acceptance = metropolis|heat_bath chooses the single-flip rule, loops = N adds N ice-manifold\n  loop moves per sweep (needed below about 0.5 J_eff). With `measure entropy` the scan must reach\n  a temperature well above the couplings (about 10 J_eff or more).\n  Example: thermo = scan T from 0.3 K to 8 K in 30 steps, sweeps = 4000, equilibrate = 1000, spacing = log"),
+    ("anneal", "NAME = anneal T from A to B in N steps [, sweeps = S, equilibrate = E, ...]\nNAME = anneal T at [T1, T2, ...] K [, ...]\n  Like `scan`, but one chain carries its state from each temperature to the next, in the order\n  written (coupling-table engine); at each temperature `equilibrate` sweeps are discarded and\n  `sweeps` measured. Takes the options of `scan` except `tempering`.\n  Example: cool = anneal T from 5 K to 0.2 K in 40 steps, sweeps = 2000"),
+    ("structure_factor", "NAME = structure_factor on plane [h, h, l] at T [, range = R, points = N, polarisation = [x, y, z], form_factor = \"Ho3+\", a = A Å, samples = S, sweeps_between = K, equilibrate = E, loops = N]\nNAME = structure_factor along [0, 0, l] through [0, 0, 2] at T [, ...]\n  Neutron S(Q) in μ² per spin (r.l.u. of the cubic cell) averaged over configurations sampled at T:\n  columns total (and sf, nsf with a polarisation axis). A plane is drawn as a heat map stored as NAME_map.\n  Example: sq = structure_factor on plane [h, h, l] at 0.3 K, range = 4, points = 81, polarisation = [1, -1, 0]"),
     ("table", "table NAME [, columns = [A, B]]\n  Shows a table: values with error bars, units in the header.\n  Example: table thermo"),
     ("show", "show NAME | model | measures | workspace\n  Shows a table or figure, the model declaration, the active measures, or every named value."),
     ("plot", "[NAME =] plot TABLE.Y [, TABLE.Y2] against X [, xscale = log, yscale = log, title = \"...\", style = line|points|both, errors = on|off, width = PX, height = PX]\n  Draws Y against X with error bars from the table; NAME stores the figure.\n  Example: plot thermo.specific_heat against T, xscale = log"),
@@ -60,6 +62,14 @@ pub const OPTION_HELP: &[(&str, &str)] = &[
     ("transverse", "transverse = neighbours (dynamics): h⊥ from the six nearest neighbours. `dipolar` is planned."),
     ("prepare", "prepare (quench, step): time before t = 0 in the field (quench; default the duration) or at the initial temperature (step; default 0)."),
     ("axis", "axis = [h, k, l] (evolve, quench, step): the direction the column M is projected on (default: the field direction, else [0, 0, 1])."),
+    ("range", "range (structure_factor): half-width of the Q range along each axis, in r.l.u. Default 4."),
+    ("points", "points (structure_factor): Q points per axis (2 to 1001). Default 81.\npoints (susceptibility): frequencies, evenly spaced in log f. Default 60."),
+    ("polarisation", "polarisation = [x, y, z] (structure_factor): neutron polarisation axis; adds the spin-flip `sf` and non-spin-flip `nsf` channels."),
+    ("form_factor", "form_factor = \"Ho3+\" | \"Dy3+\" | \"Tb3+\" (structure_factor): dipole-approximation magnetic form factor ⟨j0⟩² (International Tables Vol. C, 4.4.5); needs `a`."),
+    ("a", "a (structure_factor): cubic lattice constant (Å), turning r.l.u. into Å⁻¹ for the form factor."),
+    ("samples", "samples (structure_factor): configurations averaged. Default 20."),
+    ("sweeps_between", "sweeps_between (structure_factor): sweeps between two configurations. Default 50."),
+    ("tempering", "tempering = on | off (scan): parallel tempering (replica exchange) over the temperatures: one replica each, neighbours try to swap after every sweep; the table gets `exchange_acceptance` per pair. Default off."),
     ("loops", "loops (scan): ice-manifold loop moves attempted after every sweep (Barkema & Newman 1998), accepted on the full energy change. Default 0."),
     ("J1", "J1 (couplings nearest, exchange): nearest-neighbour exchange, read in the vector convention J1 S_i·S_j (σσ coefficient −J1/3) unless `convention = ising`."),
     ("convention", "convention = vector | ising: how J1 is read (vector: coefficient of S_i·S_j; ising: coefficient of σiσj)."),
@@ -78,7 +88,6 @@ pub const OPTION_HELP: &[(&str, &str)] = &[
     ("detrend", "detrend = constant | linear | none (spectrum): the trend removed from each segment. Default constant."),
     ("max_lag", "max_lag (autocorrelation, susceptibility): the largest lag, a time (s, ms, µs). Default 20 τ_int."),
     ("normalisation", "normalisation = biased | unbiased (autocorrelation): divide the lag-t sum by n or by n − t. Default biased."),
-    ("points", "points (susceptibility): frequencies, evenly spaced in log f. Default 60."),
     ("xscale", "xscale = linear | log (plot): the horizontal axis scale."),
     ("yscale", "yscale = linear | log (plot): the vertical axis scale."),
     ("title", "title = \"...\" (plot): the figure title."),
@@ -91,7 +100,7 @@ pub const OPTION_HELP: &[(&str, &str)] = &[
 /// Help for option values and kinds.
 pub const WORD_HELP: &[(&str, &str)] = &[
     ("pyrochlore", "pyrochlore: FCC Bravais lattice with a four-site basis; corner-sharing tetrahedra; local ⟨111⟩ Ising axes. N = 16 L³ spins."),
-    ("square_ice", "square_ice: two-dimensional six-vertex ice (planned)."),
+    ("square_ice", "square_ice: two-dimensional six-vertex ice, L×L vertices with 2L² spins on the bonds, H = J Σ_v q_v² (J = J_eff); records energy, specific_heat(_molar), entropy. Lieb's exact residual entropy is ½ ln(4/3)^{3/2} = 0.2158 per spin."),
     ("nearest", "nearest: the nearest-neighbour spin-ice model H = J_eff Σ⟨ij⟩ σiσj."),
     ("exchange", "exchange: J1, J2, J3, J3' exchange shells, in the vector or Ising convention."),
     ("dipolar", "dipolar: long-range dipolar sum by Ewald summation with conducting boundary."),
@@ -180,6 +189,14 @@ pub fn column_help(workspace: &Workspace, table: &str, column: &str) -> Option<S
     text.push('\n');
     if let Some(m) = MEASURES.iter().find(|m| m.name == column) {
         text.push_str(m.help);
+        text.push('\n');
+    }
+    if let Some((_, _, help)) = DIAGNOSTIC_COLUMNS
+        .iter()
+        .chain([&EXCHANGE_COLUMN])
+        .find(|(name, _, _)| *name == column)
+    {
+        text.push_str(help);
         text.push('\n');
     }
     if let Some(e) = &c.derived_from {

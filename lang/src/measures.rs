@@ -7,6 +7,8 @@ use serde::{Deserialize, Serialize};
 pub enum Measure {
     Energy,
     SpecificHeat,
+    /// The specific heat per mole of spins (magnetic ions), C·R, in J/(mol K).
+    SpecificHeatMolar,
     Magnetisation,
     Susceptibility,
     MonopoleDensity,
@@ -43,6 +45,14 @@ pub const MEASURES: &[MeasureInfo] = &[
         unit: "k_B",
         help: "specific heat per spin C = (⟨E²⟩ − ⟨E⟩²)/(N T²), in units of k_B; \
                multiply by R = 8.314462618 J/(mol K) for a molar value",
+        by_default: true,
+    },
+    MeasureInfo {
+        measure: Measure::SpecificHeatMolar,
+        name: "specific_heat_molar",
+        unit: "J/(mol K)",
+        help: "specific heat per mole of magnetic ions, C·R with C per spin in k_B and \
+               R = N_A k_B = 8.314462618 J/(mol K) (exact, CODATA 2018)",
         by_default: true,
     },
     MeasureInfo {
@@ -176,6 +186,34 @@ impl Measure {
         columns
     }
 }
+
+/// Columns every scan table ends with, whatever the measures: the equilibration
+/// diagnostics of the energy at each temperature (name, unit, help).
+pub const DIAGNOSTIC_COLUMNS: &[(&str, &str, &str)] = &[
+    (
+        "tau_int_energy",
+        "sweeps",
+        "integrated autocorrelation time of the energy, in sweeps, by the self-consistent \
+         window of Madras & Sokal (J. Stat. Phys. 50, 109 (1988)); a run shorter than 50 τ_int \
+         is flagged in the summary",
+    ),
+    (
+        "drift_sigma",
+        "",
+        "(mean energy of the second half of the measurement − mean of the first half) / its \
+         error; |drift_sigma| > 3 means the run was still relaxing and is flagged in the summary",
+    ),
+];
+
+/// The column a tempering scan adds: the swap acceptance of each temperature with the
+/// next higher one of the ladder (empty for the highest).
+pub const EXCHANGE_COLUMN: (&str, &str, &str) = (
+    "exchange_acceptance",
+    "",
+    "parallel tempering: accepted fraction of swaps between this temperature and the next \
+     higher one of the ladder (empty for the highest); a pair that almost never swaps splits \
+     the ladder",
+);
 
 /// Name and unit of the temperature column every scan table starts with.
 pub const TEMPERATURE_COLUMN: &str = "T";

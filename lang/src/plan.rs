@@ -2,18 +2,18 @@
 //! into stdlib (or a workspace operation) with every setting resolved.
 
 use icefield_stdlib::engine::FlipRule;
-use icefield_stdlib::exchange::{CouplingConvention, ExchangeCouplings, ZeemanField};
+use icefield_stdlib::exchange::{CouplingConvention, ExchangeCouplings};
 use icefield_stdlib::hamiltonian::NearestNeighbourIce;
 use icefield_stdlib::metropolis::Start;
 use icefield_stdlib::scan::ScanSettings;
 
 use crate::ast::Span;
 use crate::check::{
-    Checked, CheckedStatement, ColumnSpec, CommandSpec, PlotSpec, ShowTarget, StartState,
+    Checked, CheckedStatement, ColumnSpec, CommandSpec, PlotSpec, ScanSpec, ShowTarget, StartState,
 };
 use crate::diagnostic::{ErrorKind, Problem};
 use crate::measures::Measure;
-use crate::workspace::{CouplingsDecl, FieldDecl, LatticeDecl, Model, DEFAULT_SEED};
+use crate::workspace::{CouplingsDecl, FieldDecl, LatticeDecl, LatticeKind, Model, DEFAULT_SEED};
 
 /// Which engine runs a scan.
 #[derive(Clone, Debug, PartialEq)]
@@ -24,19 +24,14 @@ pub enum ScanEngine {
     /// A coupling table (exchange + Ewald dipolar + Zeeman) sampled with the local-field
     /// engine, optionally with ice-manifold loop moves.
     General(Box<GeneralModel>),
+    /// `icefield_stdlib::square_ice::run_square_ice_scan`: two-dimensional six-vertex ice,
+    /// H = J Σ_v q_v² with J = J_eff.
+    SquareIce,
 }
 
-/// Everything the coupling-table engine needs besides the scan settings.
-#[derive(Clone, Debug, PartialEq)]
-pub struct GeneralModel {
-    pub exchange: Option<ExchangeCouplings>,
-    pub dipolar_kelvin: Option<f64>,
-    pub zeeman: Option<ZeemanField>,
-    /// Unit vector for `magnetisation_along`.
-    pub direction: Option<[f64; 3]>,
-    pub rule: FlipRule,
-    pub loops_per_sweep: u64,
-}
+/// Everything the coupling-table engine needs besides the scan settings (stdlib's driver
+/// runs it; the plan only fills it in).
+pub use icefield_stdlib::scan::{GeneralModel, Ladder};
 
 /// A scan: the temperatures, lengths, seed and start (as `ScanSettings`; its model is
 /// used only by the nearest-neighbour engine) and the engine that runs it.
@@ -99,6 +94,66 @@ fn start_state(start: StartState) -> Start {
     }
 }
 
+/// The scan step of a checked scan (or anneal) against the model in force.
+pub fn scan_step(scan: &ScanSpec, model: &Model) -> Result<ScanStep, String> {
+    let (Some(lattice), Some(couplings)) = (&model.lattice, &model.couplings) else {
+        return Err("a scan needs a lattice and couplings declared first".to_string());
+    };
+    let settings = ScanSettings {
+        cells_per_side: lattice.cells_per_side,
+        model: NearestNeighbourIce {
+            j_eff_kelvin: couplings.j_eff_kelvin,
+        },
+        temperatures_kelvin: scan.temperatures_kelvin.clone(),
+        equilibration_sweeps: scan.equilibration_sweeps,
+        measurement_sweeps: scan.measurement_sweeps,
+        sample_every_sweeps: scan.sample_every_sweeps,
+        seed: model.seed.unwrap_or(DEFAULT_SEED),
+        start: start_state(scan.start),
+    };
+    let general = !couplings.is_nearest()
+        || model.field.is_some()
+        || scan.rule != FlipRule::Metropolis
+        || scan.loops_per_sweep > 0
+        || scan.ladder != Ladder::Independent;
+    let engine = if lattice.kind == LatticeKind::SquareIce {
+        ScanEngine::SquareIce
+    } else if general {
+        // Nearest-neighbour couplings on the general engine: J_eff is already the σσ
+        // coefficient, so it enters in the Ising convention.
+        let exchange = if couplings.is_nearest() {
+            Some(ExchangeCouplings::nearest_neighbour(
+                couplings.j_eff_kelvin,
+                CouplingConvention::IsingPseudospins,
+            ))
+        } else {
+            couplings.exchange
+        };
+        ScanEngine::General(Box::new(GeneralModel {
+            exchange,
+            dipolar_kelvin: couplings.dipolar_kelvin,
+            zeeman: model.field.as_ref().map(|f| f.field),
+            direction: model.field.as_ref().and_then(|f| f.direction),
+            rule: scan.rule,
+            loops_per_sweep: scan.loops_per_sweep,
+            ladder: scan.ladder,
+        }))
+    } else {
+        ScanEngine::NearestNeighbour
+    };
+    Ok(ScanStep {
+        target: scan.target.clone(),
+        settings,
+        engine,
+        field: model.field.clone(),
+        measures: scan.measures.clone(),
+        lattice: lattice.clone(),
+        couplings: couplings.clone(),
+        seed_declared: model.seed.is_some(),
+        summary: scan.summary,
+    })
+}
+
 /// Compiles a checked cell against the model as it stands before the cell.
 pub fn compile(checked: &[CheckedStatement], model: &Model) -> Result<Vec<Step>, Vec<Problem>> {
     let mut model = model.clone();
@@ -127,65 +182,13 @@ pub fn compile(checked: &[CheckedStatement], model: &Model) -> Result<Vec<Step>,
                 model.measures = Some(m.clone());
                 Plan::SetMeasures(m.clone())
             }
-            Checked::Scan(scan) => {
-                let (Some(lattice), Some(couplings)) = (&model.lattice, &model.couplings) else {
-                    problems.push(Problem::new(
-                        ErrorKind::Name,
-                        statement.keyword,
-                        "a scan needs a lattice and couplings declared first",
-                    ));
+            Checked::Scan(scan) => match scan_step(scan, &model) {
+                Ok(step) => Plan::Scan(Box::new(step)),
+                Err(message) => {
+                    problems.push(Problem::new(ErrorKind::Name, statement.keyword, message));
                     continue;
-                };
-                let settings = ScanSettings {
-                    cells_per_side: lattice.cells_per_side,
-                    model: NearestNeighbourIce {
-                        j_eff_kelvin: couplings.j_eff_kelvin,
-                    },
-                    temperatures_kelvin: scan.temperatures_kelvin.clone(),
-                    equilibration_sweeps: scan.equilibration_sweeps,
-                    measurement_sweeps: scan.measurement_sweeps,
-                    sample_every_sweeps: scan.sample_every_sweeps,
-                    seed: model.seed.unwrap_or(DEFAULT_SEED),
-                    start: start_state(scan.start),
-                };
-                let general = !couplings.is_nearest()
-                    || model.field.is_some()
-                    || scan.rule != FlipRule::Metropolis
-                    || scan.loops_per_sweep > 0;
-                let engine = if general {
-                    // Nearest-neighbour couplings on the general engine: J_eff is already
-                    // the σσ coefficient, so it enters in the Ising convention.
-                    let exchange = if couplings.is_nearest() {
-                        Some(ExchangeCouplings::nearest_neighbour(
-                            couplings.j_eff_kelvin,
-                            CouplingConvention::IsingPseudospins,
-                        ))
-                    } else {
-                        couplings.exchange
-                    };
-                    ScanEngine::General(Box::new(GeneralModel {
-                        exchange,
-                        dipolar_kelvin: couplings.dipolar_kelvin,
-                        zeeman: model.field.as_ref().map(|f| f.field),
-                        direction: model.field.as_ref().and_then(|f| f.direction),
-                        rule: scan.rule,
-                        loops_per_sweep: scan.loops_per_sweep,
-                    }))
-                } else {
-                    ScanEngine::NearestNeighbour
-                };
-                Plan::Scan(Box::new(ScanStep {
-                    target: scan.target.clone(),
-                    settings,
-                    engine,
-                    field: model.field.clone(),
-                    measures: scan.measures.clone(),
-                    lattice: lattice.clone(),
-                    couplings: couplings.clone(),
-                    seed_declared: model.seed.is_some(),
-                    summary: scan.summary,
-                }))
-            }
+                }
+            },
             Checked::Table { name, columns } => Plan::Table {
                 name: name.clone(),
                 columns: columns.clone(),

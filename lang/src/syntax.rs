@@ -33,7 +33,6 @@ pub const KEYWORDS: &[&str] = &[
 /// with the section that describes them.
 pub const PLANNED_KEYWORDS: &[(&str, &str)] = &[
     ("equilibrate", "Runs"),
-    ("anneal", "Runs"),
     ("map", "Plots"),
     ("import", "Data import and export"),
 ];

@@ -13,12 +13,14 @@ use crate::measures::Measure;
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
 pub enum LatticeKind {
     Pyrochlore,
+    /// Two-dimensional six-vertex ice: L×L vertices, 2L² spins on the bonds.
+    SquareIce,
 }
 
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 pub struct LatticeDecl {
     pub kind: LatticeKind,
-    /// L: the system is L×L×L conventional cubic cells, periodic.
+    /// L: the system is L×L×L conventional cubic cells, periodic (square ice: L×L vertices).
     pub cells_per_side: usize,
 }
 
@@ -26,6 +28,7 @@ impl LatticeDecl {
     pub fn spin_count(&self) -> usize {
         match self.kind {
             LatticeKind::Pyrochlore => 16 * self.cells_per_side.pow(3),
+            LatticeKind::SquareIce => 2 * self.cells_per_side.pow(2),
         }
     }
     pub fn describe(&self) -> String {
@@ -34,6 +37,12 @@ impl LatticeDecl {
                 "pyrochlore, L = {} ({} spins)",
                 self.cells_per_side,
                 self.spin_count()
+            ),
+            LatticeKind::SquareIce => format!(
+                "square ice, L = {} ({} spins on the bonds of {} vertices)",
+                self.cells_per_side,
+                self.spin_count(),
+                self.cells_per_side * self.cells_per_side
             ),
         }
     }

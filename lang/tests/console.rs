@@ -52,7 +52,7 @@ fn completes_keywords_measures_options_and_units() {
         (vec!["measure".to_string()], 0, 3)
     );
     let c = session.complete("measure energy, spec", 20);
-    assert_eq!(c.matches, vec!["specific_heat"]);
+    assert_eq!(c.matches, vec!["specific_heat", "specific_heat_molar"]);
     assert_eq!((c.start, c.end), (16, 20));
     let code = "t = scan T from 1 K to 2 K in 3 steps, sw";
     let c = session.complete(code, code.chars().count());
@@ -103,7 +103,16 @@ fn completes_workspace_names_and_columns_after_a_dot() {
     );
     let code = "plot thermo.";
     let c = session.complete(code, 12);
-    assert_eq!(c.matches, vec!["T", "energy", "specific_heat"]);
+    assert_eq!(
+        c.matches,
+        vec![
+            "T",
+            "energy",
+            "specific_heat",
+            "tau_int_energy",
+            "drift_sigma"
+        ]
+    );
     // After a non-ASCII comment on the same line before the cursor.
     let code = "plot thermo.e";
     let with_comment = format!("# Å µ\n{code}");

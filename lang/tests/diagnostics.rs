@@ -181,8 +181,7 @@ fn out_of_range_values_are_refused() {
 fn planned_statements_say_so() {
     let session = Session::new();
     for (code, kind) in [
-        ("relax = anneal T from 2 K to 0.1 K", "NotImplementedError"),
-        ("lattice square_ice L = 8", "NotImplementedError"),
+        ("state = equilibrate at 0.5 K", "NotImplementedError"),
         ("measure structure_factor", "NotImplementedError"),
         (
             "lattice pyrochlore L = 4, a = 10.1 Å",

@@ -323,7 +323,7 @@ fn export_writes_csv_with_units_in_the_header() {
     let mut lines = text.lines();
     assert_eq!(
         lines.next().unwrap(),
-        "T [K],energy [K],energy_error [K],acceptance_rate"
+        "T [K],energy [K],energy_error [K],acceptance_rate,tau_int_energy [sweeps],drift_sigma"
     );
     assert_eq!(lines.count(), 5);
     std::fs::remove_dir_all(&dir).ok();

@@ -21,6 +21,9 @@ use rayon::prelude::*;
 use serde::{Deserialize, Serialize};
 use std::fmt;
 
+mod general;
+pub use general::*;
+
 /// What to simulate.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 pub struct ScanSettings {
@@ -70,6 +73,132 @@ pub struct ScanPoint {
     /// Whether the energy error bars reached a blocking plateau; `false`
     /// means the run is short compared with the correlation time.
     pub errors_converged: bool,
+    /// Equilibration diagnostics of the energy series (absent for fewer than
+    /// 8 stored samples).
+    #[serde(default)]
+    pub diagnostics: Option<EnergyDiagnostics>,
+}
+
+/// Whether one temperature's run looks long enough: the integrated
+/// autocorrelation time of the energy by the self-consistent window of Madras &
+/// Sokal (J. Stat. Phys. 50, 109 (1988); Sokal, "Monte Carlo methods in
+/// statistical mechanics: foundations and new algorithms", in Functional
+/// Integration, Plenum (1997)) and the drift of the mean energy between the
+/// first and the second half of the measurement.
+#[derive(Clone, Copy, Debug, PartialEq, Serialize, Deserialize)]
+pub struct EnergyDiagnostics {
+    /// τ_int of the energy in sweeps (½ sample interval for uncorrelated samples).
+    pub tau_int_sweeps: f64,
+    /// Whether the window condition W ≥ 6 τ_int was met before a quarter of the series.
+    pub tau_window_converged: bool,
+    /// (mean of the second half − mean of the first) / its error, each half's
+    /// error from blocking.
+    pub drift_sigma: f64,
+}
+
+/// A run shorter than this many τ_int is flagged (common practice: error bars
+/// need many independent samples; Sokal (1997) asks for a run ≫ τ).
+pub const MIN_SWEEPS_PER_TAU: f64 = 50.0;
+/// A drift between the halves larger than this many errors is flagged
+/// (common practice).
+pub const MAX_DRIFT_SIGMA: f64 = 3.0;
+
+impl EnergyDiagnostics {
+    /// Diagnostics of an energy series sampled every `sweeps_per_sample`
+    /// sweeps; `None` for fewer than 8 samples or non-finite values.
+    pub fn of_series(energies: &[f64], sweeps_per_sample: f64) -> Option<Self> {
+        let d = crate::tempering::equilibration_diagnostics(energies)?;
+        let signed = if d.drift_between_halves.error > 0.0 {
+            d.drift_between_halves.mean / d.drift_between_halves.error
+        } else if d.drift_between_halves.mean == 0.0 {
+            0.0
+        } else {
+            d.drift_between_halves.mean.signum() * f64::INFINITY
+        };
+        let window = crate::observe::integrated_autocorrelation_time(energies)?;
+        Some(EnergyDiagnostics {
+            tau_int_sweeps: d.autocorrelation_samples * sweeps_per_sample,
+            tau_window_converged: window.converged,
+            drift_sigma: signed,
+        })
+    }
+
+    /// Why a run of `measurement_sweeps` looks too short, if it does.
+    pub fn concern(&self, measurement_sweeps: u64) -> Option<String> {
+        let mut reasons = Vec::new();
+        if !self.tau_window_converged
+            || (measurement_sweeps as f64) < MIN_SWEEPS_PER_TAU * self.tau_int_sweeps
+        {
+            reasons.push(format!(
+                "{measurement_sweeps} sweeps are fewer than {MIN_SWEEPS_PER_TAU} τ_int = {:.0}",
+                MIN_SWEEPS_PER_TAU * self.tau_int_sweeps
+            ));
+        }
+        if self.drift_sigma.is_nan() || self.drift_sigma.abs() > MAX_DRIFT_SIGMA {
+            reasons.push(format!(
+                "the energy drifts by {:.1}σ between the halves",
+                self.drift_sigma
+            ));
+        }
+        (!reasons.is_empty()).then(|| reasons.join(" and "))
+    }
+}
+
+/// A scalar series stored as means of bins (bounded memory: adjacent bins
+/// merge when full, which keeps the mean exact and only removes blocking
+/// levels below the bin width).
+#[derive(Clone, Debug, Default, Serialize, Deserialize)]
+pub struct BinnedSeries {
+    bins: Vec<f64>,
+    width: usize,
+    partial: f64,
+    count: usize,
+}
+
+impl BinnedSeries {
+    /// Empty series.
+    pub fn new() -> Self {
+        BinnedSeries {
+            bins: Vec::new(),
+            width: 1,
+            partial: 0.0,
+            count: 0,
+        }
+    }
+    /// Add one sample.
+    pub fn push(&mut self, value: f64) {
+        self.partial += value;
+        self.count += 1;
+        if self.count == self.width {
+            self.bins.push(self.partial / self.width as f64);
+            self.partial = 0.0;
+            self.count = 0;
+            if self.bins.len() >= crate::observe::MAX_STORED_SAMPLES {
+                self.bins = self
+                    .bins
+                    .chunks_exact(2)
+                    .map(|p| 0.5 * (p[0] + p[1]))
+                    .collect();
+                self.width *= 2;
+            }
+        }
+    }
+    /// The stored bin means.
+    pub fn bins(&self) -> &[f64] {
+        &self.bins
+    }
+    /// Samples per stored bin.
+    pub fn bin_width(&self) -> usize {
+        self.width
+    }
+    /// Mean with a Flyvbjerg–Petersen blocking error (J. Chem. Phys. 91, 461 (1989)).
+    pub fn estimate(&self) -> Option<Estimate> {
+        crate::observe::blocking_analysis(&self.bins).map(|b| b.estimate())
+    }
+    /// Equilibration diagnostics, for samples taken every `sample_every_sweeps`.
+    pub fn diagnostics(&self, sample_every_sweeps: u64) -> Option<EnergyDiagnostics> {
+        EnergyDiagnostics::of_series(&self.bins, (self.width as u64 * sample_every_sweeps) as f64)
+    }
 }
 
 impl ScanPoint {
@@ -95,6 +224,7 @@ impl ScanPoint {
             integrated_autocorrelation_sweeps: th.energy_autocorrelation_samples
                 * sample_every_sweeps as f64,
             errors_converged: th.blocking_converged,
+            diagnostics: None,
         }
     }
 }
@@ -138,6 +268,11 @@ pub enum ScanError {
         /// `measurement_sweeps / sample_every_sweeps`.
         samples: u64,
     },
+    /// A square-ice side outside `3..=MAX_SQUARE_ICE_SIDE`.
+    SquareIceSize {
+        /// The side given.
+        side: usize,
+    },
 }
 
 /// Fewest samples per temperature for which error bars make sense.
@@ -167,6 +302,11 @@ impl fmt::Display for ScanError {
                 f,
                 "only {samples} samples per temperature (measurement_sweeps / sample_every_sweeps); \
                  at least {MIN_SAMPLES} are needed for error bars"
+            ),
+            ScanError::SquareIceSize { side } => write!(
+                f,
+                "square ice needs from 3 to {} vertices per side, not {side}",
+                crate::square_ice::MAX_SQUARE_ICE_SIDE
             ),
         }
     }
@@ -288,6 +428,7 @@ fn simulate_temperature(
         counter.unit_done();
     }
     let mut series = ThermodynamicSeries::new(lat.spin_count(), lat.tetrahedron_count());
+    let mut energies = BinnedSeries::new();
     let mut accepted = 0u64;
     let mut attempted = 0u64;
     for sweep in 1..=settings.measurement_sweeps {
@@ -300,6 +441,7 @@ fn simulate_temperature(
         attempted += lat.spin_count() as u64;
         if sweep % settings.sample_every_sweeps == 0 {
             let charges = engine.charge_counts();
+            energies.push(engine.energy_kelvin());
             series.push(&Sample {
                 energy_kelvin: engine.energy_kelvin(),
                 magnetisation: engine.magnetisation(),
@@ -310,12 +452,14 @@ fn simulate_temperature(
         counter.unit_done();
     }
     let th = series.thermodynamics(temperature_kelvin)?;
-    Some(ScanPoint::from_thermodynamics(
+    let mut point = ScanPoint::from_thermodynamics(
         temperature_kelvin,
         &th,
         accepted as f64 / attempted.max(1) as f64,
         settings.sample_every_sweeps,
-    ))
+    );
+    point.diagnostics = energies.diagnostics(settings.sample_every_sweeps);
+    Some(point)
 }
 
 #[cfg(test)]
@@ -409,6 +553,39 @@ mod tests {
         raised.request();
         let none = run_scan(&s, &raised, &ignore_progress).unwrap();
         assert!(none.interrupted && none.points.is_empty());
+    }
+
+    #[test]
+    fn diagnostics_of_an_ar1_series_give_its_exact_tau_int() {
+        // x_t = ρ x_{t−1} + ε_t has ρ(t) = ρ^t, so τ_int = ½ + ρ/(1 − ρ) = (1 + ρ)/(2(1 − ρ))
+        // (exact); ρ = 0.8 gives 4.5 samples, i.e. 9 sweeps at 2 sweeps per sample.
+        use rand::Rng;
+        let mut rng = crate::rng::RngStreams::new(3).stream(0);
+        let rho = 0.8;
+        let mut x = 0.0f64;
+        let mut series = BinnedSeries::new();
+        for _ in 0..60_000 {
+            // Box–Muller normal variate.
+            let (u, v): (f64, f64) = (rng.gen::<f64>().max(1e-300), rng.gen());
+            let noise = (-2.0 * u.ln()).sqrt() * (2.0 * std::f64::consts::PI * v).cos();
+            x = rho * x + noise;
+            series.push(x);
+        }
+        let d = series.diagnostics(2).unwrap();
+        assert!((d.tau_int_sweeps - 9.0).abs() < 1.0, "{d:?}");
+        assert!(d.tau_window_converged);
+        // A stationary series shows no drift beyond 4σ, and 60000 samples are ≫ 50 τ_int.
+        assert!(d.drift_sigma.abs() < 4.0, "{d:?}");
+        assert!(d.concern(60_000 * 2).is_none());
+        // A run of 400 sweeps is shorter than 50 τ_int = 450 sweeps.
+        assert!(d.concern(400).unwrap().contains("50 τ_int"));
+        // A ramp drifts (derived: the halves' means differ by many errors).
+        let mut ramp = BinnedSeries::new();
+        for i in 0..4000 {
+            ramp.push(i as f64 * 1e-3 + ((i * 7919) % 13) as f64 * 1e-4);
+        }
+        let r = ramp.diagnostics(1).unwrap();
+        assert!(r.drift_sigma > 10.0 && r.concern(4000).is_some(), "{r:?}");
     }
 
     #[test]

@@ -118,20 +118,46 @@ impl<'a> ParallelTempering<'a> {
     /// sweep in every replica (in parallel), then one exchange attempt for
     /// every neighbouring pair (even pairs, then odd pairs).
     pub fn round(&mut self, sweeps: u64, loop_moves_per_sweep: u64) {
-        self.replicas.par_iter_mut().for_each(|r| {
-            for _ in 0..sweeps {
-                r.sampler.sweep();
-                for _ in 0..loop_moves_per_sweep {
-                    r.loops.attempt(&mut r.sampler);
+        self.sweep_all(sweeps, loop_moves_per_sweep);
+        self.exchange_all();
+    }
+
+    /// The sampling half of a round: `sweeps` sweeps (each followed by
+    /// `loop_moves_per_sweep` loop moves) in every replica, in parallel;
+    /// returns the accepted single flips of the replica in each slot.
+    pub fn sweep_all(&mut self, sweeps: u64, loop_moves_per_sweep: u64) -> Vec<u64> {
+        self.replicas
+            .par_iter_mut()
+            .map(|r| {
+                let mut accepted = 0;
+                for _ in 0..sweeps {
+                    accepted += r.sampler.sweep();
+                    for _ in 0..loop_moves_per_sweep {
+                        r.loops.attempt(&mut r.sampler);
+                    }
                 }
-            }
-        });
+                accepted
+            })
+            .collect()
+    }
+
+    /// The exchange half of a round: one swap attempt for every neighbouring
+    /// pair, even pairs first, then odd pairs.
+    pub fn exchange_all(&mut self) {
         for parity in 0..2 {
             let mut k = parity;
             while k + 1 < self.replicas.len() {
                 self.try_swap(k);
                 k += 2;
             }
+        }
+    }
+
+    /// Recompute every replica's running energy from its fields (removes the
+    /// rounding accumulated over many flips).
+    pub fn resynchronise_energies(&mut self) {
+        for r in &mut self.replicas {
+            r.sampler.resynchronise_energy();
         }
     }
 

@@ -17,7 +17,10 @@ pub mod percolation;
 use crate::ast::*;
 use crate::commands::{self, Family};
 use crate::diagnostic::{did_you_mean, ErrorKind, Problem};
-use crate::measures::{Measure, MEASURES, PLANNED_MEASURES, TEMPERATURE_COLUMN, TEMPERATURE_UNIT};
+use crate::measures::{
+    Measure, DIAGNOSTIC_COLUMNS, EXCHANGE_COLUMN, MEASURES, PLANNED_MEASURES, TEMPERATURE_COLUMN,
+    TEMPERATURE_UNIT,
+};
 use crate::script::{Script, BUILTIN_FUNCTIONS};
 use crate::units::{self, Dimension};
 use crate::workspace::{
@@ -26,6 +29,7 @@ use crate::workspace::{
 };
 use icefield_stdlib::engine::FlipRule;
 use icefield_stdlib::exchange::{CouplingConvention, ExchangeCouplings, ZeemanField};
+use icefield_stdlib::scan::Ladder;
 
 /// The largest L accepted by the checker (stdlib refuses sizes that do not fit memory).
 pub const MAX_CELLS_PER_SIDE: u64 = 1000;
@@ -34,8 +38,17 @@ pub const MAX_SCAN_POINTS: u64 = 100_000;
 /// The name a scan result gets when the statement does not name it.
 pub const DEFAULT_SCAN_NAME: &str = "last_scan";
 
-pub const LATTICE_KINDS: &[&str] = &["pyrochlore"];
-pub const PLANNED_LATTICE_KINDS: &[&str] = &["square_ice"];
+pub const LATTICE_KINDS: &[&str] = &["pyrochlore", "square_ice"];
+pub const PLANNED_LATTICE_KINDS: &[&str] = &[];
+/// The measures a square-ice scan records (its sampler keeps the energy only).
+pub const SQUARE_ICE_MEASURES: &[Measure] = &[
+    Measure::Energy,
+    Measure::SpecificHeat,
+    Measure::SpecificHeatMolar,
+    Measure::AcceptanceRate,
+    Measure::AutocorrelationTime,
+    Measure::Entropy,
+];
 pub const COUPLING_KINDS: &[&str] = &["nearest", "exchange", "dipolar"];
 pub const PLANNED_COUPLING_KINDS: &[&str] = &[];
 
@@ -56,6 +69,7 @@ pub const SCAN_OPTIONS: &[&str] = &[
     "start",
     "acceptance",
     "loops",
+    "tempering",
 ];
 pub const TABLE_OPTIONS: &[&str] = &["columns"];
 pub const PLOT_OPTIONS: &[&str] = &[
@@ -67,7 +81,6 @@ pub const MIN_SAMPLES: u64 = icefield_stdlib::scan::MIN_SAMPLES;
 /// Options of the designed language that later versions use: (statement, option, section).
 pub const PLANNED_OPTIONS: &[(&str, &str, &str)] = &[
     ("lattice", "a", "Lattice"),
-    ("scan", "tempering", "Further runs"),
     ("scan", "moves", "Further runs"),
 ];
 pub const SCAN_VARIABLES: &[&str] = &["T"];
@@ -115,6 +128,8 @@ pub struct ScanSpec {
     pub rule: FlipRule,
     /// Ice-manifold loop moves attempted after every sweep.
     pub loops_per_sweep: u64,
+    /// Independent chains, parallel tempering (`tempering = on`) or an anneal.
+    pub ladder: Ladder,
     pub measures: Vec<Measure>,
     /// No later statement of the cell shows this table: print a short summary.
     pub summary: bool,
@@ -240,6 +255,10 @@ struct View {
     names: Vec<(String, NameView)>,
     lattice: bool,
     couplings: bool,
+    /// The declared lattice, when it is known (not after a failed declaration).
+    lattice_decl: Option<LatticeDecl>,
+    /// The declared couplings go beyond the nearest-neighbour model (coupling table).
+    general_couplings: bool,
     /// A field with a direction is declared (so `magnetisation_along` has a meaning).
     field_direction: bool,
     measures: Vec<Measure>,
@@ -279,6 +298,12 @@ impl View {
             names,
             lattice: workspace.model.lattice.is_some(),
             couplings: workspace.model.couplings.is_some(),
+            lattice_decl: workspace.model.lattice.clone(),
+            general_couplings: workspace
+                .model
+                .couplings
+                .as_ref()
+                .is_some_and(|c| !c.is_nearest()),
             field_direction: workspace
                 .model
                 .field
@@ -317,7 +342,10 @@ impl View {
     /// Applies what a statement that failed to parse would have defined.
     fn assume(&mut self, failed: &Failed) {
         match failed.keyword.as_str() {
-            "lattice" => self.lattice = true,
+            "lattice" => {
+                self.lattice = true;
+                self.lattice_decl = None;
+            }
             "couplings" => self.couplings = true,
             "field" => self.field_direction = true,
             "rhai" => self.lenient_script = true,
@@ -402,6 +430,9 @@ fn mark_summaries(steps: &mut [CheckedStatement]) {
     for index in 0..steps.len() {
         let target = match &steps[index].step {
             Checked::Scan(scan) => scan.target.clone(),
+            Checked::Command(CommandSpec::Equilibrium(equilibrium::EquilibriumSpec::Anneal(
+                scan,
+            ))) => scan.target.clone(),
             _ => continue,
         };
         let shown = steps[index + 1..].iter().any(|s| match &s.step {
@@ -410,8 +441,12 @@ fn mark_summaries(steps: &mut [CheckedStatement]) {
             Checked::Plot(plot) => plot.series.iter().any(|(t, _)| *t == target),
             _ => false,
         });
-        if let Checked::Scan(scan) = &mut steps[index].step {
-            scan.summary = !shown;
+        match &mut steps[index].step {
+            Checked::Scan(scan)
+            | Checked::Command(CommandSpec::Equilibrium(equilibrium::EquilibriumSpec::Anneal(
+                scan,
+            ))) => scan.summary = !shown,
+            _ => {}
         }
     }
 }
@@ -761,6 +796,7 @@ impl<'a> Checker<'a> {
     ) -> Option<Checked> {
         // Even a failed declaration counts as one, so later lines get no follow-up errors.
         view.lattice = true;
+        view.lattice_decl = None;
         // Options of another lattice kind are that kind's business.
         if !self.kind_name(kind, LATTICE_KINDS, PLANNED_LATTICE_KINDS, "lattice") {
             return None;
@@ -769,6 +805,9 @@ impl<'a> Checker<'a> {
         let options = self.options(options, LATTICE_OPTIONS, "lattice");
         if self.problems.len() > before_options {
             return None;
+        }
+        if kind.name == "square_ice" {
+            return self.square_ice_lattice(statement, &options, view);
         }
         let size = match options.iter().find(|o| o.key.name == "L") {
             Some(option) => {
@@ -805,10 +844,44 @@ impl<'a> Checker<'a> {
                 return None;
             }
         };
-        Some(Checked::Lattice(LatticeDecl {
+        let decl = LatticeDecl {
             kind: LatticeKind::Pyrochlore,
             cells_per_side: size as usize,
-        }))
+        };
+        view.lattice_decl = Some(decl.clone());
+        Some(Checked::Lattice(decl))
+    }
+
+    /// `lattice square_ice L = N`: N×N vertices, 2N² spins (stdlib::square_ice).
+    fn square_ice_lattice(
+        &mut self,
+        statement: &Statement,
+        options: &[&Opt],
+        view: &mut View,
+    ) -> Option<Checked> {
+        let Some(option) = options.iter().find(|o| o.key.name == "L") else {
+            self.push(
+                Problem::new(
+                    ErrorKind::Value,
+                    statement.span,
+                    "the lattice needs its size `L` (vertices per side)",
+                )
+                .with_help("write `lattice square_ice L = 32`"),
+            );
+            return None;
+        };
+        let size = self.count(
+            &option.value,
+            "`L` (vertices per side of square ice)",
+            3,
+            icefield_stdlib::square_ice::MAX_SQUARE_ICE_SIDE as u64,
+        )?;
+        let decl = LatticeDecl {
+            kind: LatticeKind::SquareIce,
+            cells_per_side: size as usize,
+        };
+        view.lattice_decl = Some(decl.clone());
+        Some(Checked::Lattice(decl))
     }
 
     fn energy_option(&mut self, option: &Opt, what: &str) -> Option<f64> {
@@ -836,6 +909,7 @@ impl<'a> Checker<'a> {
         if !self.kind_name(kind, COUPLING_KINDS, PLANNED_COUPLING_KINDS, "coupling set") {
             return None;
         }
+        view.general_couplings = kind.name != "nearest";
         match kind.name.as_str() {
             "exchange" => return self.exchange(statement, options),
             "dipolar" => return self.dipolar(statement, options),
@@ -1450,6 +1524,16 @@ impl<'a> Checker<'a> {
             ),
             None => Some(0),
         };
+        let ladder = match find("tempering") {
+            Some(o) => self.word(&o.value, "`tempering`", &["on", "off"]).map(|w| {
+                if w == "on" {
+                    Ladder::Tempering
+                } else {
+                    Ladder::Independent
+                }
+            }),
+            None => Some(Ladder::Independent),
+        };
         let mut measures = view.measures.clone();
         if !view.field_direction {
             if view.measures_chosen && measures.contains(&Measure::MagnetisationAlong) {
@@ -1466,6 +1550,26 @@ impl<'a> Checker<'a> {
                 );
             }
             measures.retain(|m| *m != Measure::MagnetisationAlong);
+        }
+        let square_ice = view
+            .lattice_decl
+            .as_ref()
+            .is_some_and(|l| l.kind == LatticeKind::SquareIce);
+        if square_ice {
+            self.square_ice_scan(statement, &options, view, &mut measures);
+        } else if let (Some(lattice), Some(ladder)) = (&view.lattice_decl, ladder) {
+            let general = view.general_couplings
+                || view.field_direction
+                || rule != Some(FlipRule::Metropolis)
+                || loops.is_some_and(|l| l > 0)
+                || ladder != Ladder::Independent;
+            let replicas = match (ladder, &temperatures) {
+                (Ladder::Tempering, Some(t)) => t.len(),
+                _ => 1,
+            };
+            if general {
+                self.coupling_table_fits(statement, lattice.cells_per_side, replicas);
+            }
         }
         if measures.contains(&Measure::Entropy) {
             if let Some(t) = &temperatures {
@@ -1527,6 +1631,18 @@ impl<'a> Checker<'a> {
                     derived: false,
                 }),
         );
+        columns.extend(DIAGNOSTIC_COLUMNS.iter().map(|(name, unit, _)| ColumnView {
+            name: name.to_string(),
+            unit: unit.to_string(),
+            derived: false,
+        }));
+        if ladder == Some(Ladder::Tempering) {
+            columns.push(ColumnView {
+                name: EXCHANGE_COLUMN.0.to_string(),
+                unit: EXCHANGE_COLUMN.1.to_string(),
+                derived: false,
+            });
+        }
         view.set(&target, NameView::Table(columns));
         Some(Checked::Scan(ScanSpec {
             target,
@@ -1537,9 +1653,109 @@ impl<'a> Checker<'a> {
             start,
             rule: rule?,
             loops_per_sweep: loops?,
+            ladder: ladder?,
             measures,
             summary: true,
         }))
+    }
+
+    /// Refuses, before anything is allocated, a coupling-table scan whose table and
+    /// samplers would not fit the memory budget (stdlib's estimate).
+    fn coupling_table_fits(
+        &mut self,
+        statement: &Statement,
+        cells_per_side: usize,
+        replicas: usize,
+    ) {
+        use icefield_stdlib::scan::{estimated_general_scan_bytes, GENERAL_SCAN_LIMIT_BYTES};
+        let bytes = estimated_general_scan_bytes(cells_per_side, replicas);
+        if bytes > GENERAL_SCAN_LIMIT_BYTES {
+            let gib = |b: u64| b as f64 / (1u64 << 30) as f64;
+            self.push(
+                Problem::new(
+                    ErrorKind::Value,
+                    statement.keyword.span,
+                    format!(
+                        "this scan needs a coupling table for L = {cells_per_side}{}: about \
+                         {:.2} GiB, more than the {:.2} GiB limit",
+                        if replicas > 1 {
+                            format!(" and {replicas} tempering replicas")
+                        } else {
+                            String::new()
+                        },
+                        gib(bytes),
+                        gib(GENERAL_SCAN_LIMIT_BYTES)
+                    ),
+                )
+                .with_help(
+                    "declare a smaller lattice, or use `couplings nearest` alone (the \
+                     nearest-neighbour engine needs no table)",
+                ),
+            );
+        }
+    }
+
+    /// What a scan of square ice can do: energy-based measures, the vertex model's J from
+    /// `couplings nearest J_eff`, single-flip Metropolis with independent chains.
+    fn square_ice_scan(
+        &mut self,
+        statement: &Statement,
+        options: &[&Opt],
+        view: &View,
+        measures: &mut Vec<Measure>,
+    ) {
+        if view.general_couplings || view.field_direction {
+            self.push(Problem::new(
+                ErrorKind::Value,
+                statement.keyword.span,
+                "square ice runs the vertex model H = J Σ_v q_v² with J from `couplings nearest \
+                 J_eff = ...`; exchange shells, dipolar sums and fields belong to the pyrochlore",
+            ));
+        }
+        for option in options {
+            let refused = matches!(
+                option.key.name.as_str(),
+                "loops" | "tempering" | "acceptance" | "start"
+            );
+            if refused {
+                self.push(Problem::new(
+                    ErrorKind::Value,
+                    option.key.span,
+                    format!(
+                        "`{}` is not available on square ice: its sampler runs independent \
+                         single-flip Metropolis chains from the ordered ice state",
+                        option.key.name
+                    ),
+                ));
+            }
+        }
+        if view.measures_chosen {
+            for m in measures.iter() {
+                if !SQUARE_ICE_MEASURES.contains(m) {
+                    self.push(
+                        Problem::new(
+                            ErrorKind::Value,
+                            statement.keyword.span,
+                            format!(
+                                "square ice does not record `{}` (its sampler keeps the energy \
+                                 only)",
+                                m.name()
+                            ),
+                        )
+                        .with_help(format!(
+                            "square ice records {}",
+                            list_words(
+                                &SQUARE_ICE_MEASURES
+                                    .iter()
+                                    .map(|m| m.name())
+                                    .collect::<Vec<_>>()
+                            )
+                        )),
+                    );
+                }
+            }
+        }
+        measures.retain(|m| SQUARE_ICE_MEASURES.contains(m));
     }
 
     fn temperature_list(&mut self, list: &Value) -> Option<Vec<f64>> {

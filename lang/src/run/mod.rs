@@ -6,33 +6,26 @@ use std::panic::{catch_unwind, AssertUnwindSafe};
 use std::sync::Mutex;
 use std::time::{Duration, Instant};
 
-use rayon::prelude::*;
-
-use icefield_stdlib::control::{Interrupt, Progress, ProgressFn, SharedProgress};
-use icefield_stdlib::couplings::CouplingTable;
-use icefield_stdlib::engine::LocalFieldSampler;
+use icefield_stdlib::control::{Interrupt, Progress, ProgressFn};
 use icefield_stdlib::entropy::{
     entropy_by_thermodynamic_integration, EnergyPoint, EntropyPoint, HighTemperatureTail,
+    GAS_CONSTANT_JOULE_PER_MOLE_KELVIN,
 };
-use icefield_stdlib::ewald::{DipolarInteraction, DEFAULT_EWALD_ACCURACY};
 use icefield_stdlib::figure::{render_svg, Axis, AxisScale, LinePlot, Series, SeriesStyle};
-use icefield_stdlib::lattice::Pyrochlore;
-use icefield_stdlib::loops::LoopMoves;
-use icefield_stdlib::metropolis::initial_configuration;
-use icefield_stdlib::observe::{
-    blocking_analysis, Estimate, Sample, ThermodynamicSeries, MAX_STORED_SAMPLES,
-};
-use icefield_stdlib::rng::{RngStreams, SpinRng};
-use icefield_stdlib::scan::{run_scan, ScanPoint, ScanSettings, PROGRESS_LABEL};
+use icefield_stdlib::observe::Estimate;
+use icefield_stdlib::scan::{run_general_scan, run_scan, EnergyDiagnostics, GeneralScanPoint};
+use icefield_stdlib::square_ice::{run_square_ice_scan, SquareIce};
+use icefield_stdlib::tempering::PairExchange;
 
 use crate::ast::Span;
 use crate::check::{ColumnSpec, CommandSpec, PlotSpec, Scale, ShowTarget, Style};
 use crate::diagnostic::{CellError, ErrorKind, Problem};
 use crate::display::{self, header};
 use crate::measures::{
-    Measure, MEASURES, MOLAR_ENTROPY_COLUMN, TEMPERATURE_COLUMN, TEMPERATURE_UNIT,
+    Measure, DIAGNOSTIC_COLUMNS, EXCHANGE_COLUMN, MEASURES, MOLAR_ENTROPY_COLUMN,
+    TEMPERATURE_COLUMN, TEMPERATURE_UNIT,
 };
-use crate::plan::{GeneralModel, Plan, ScanEngine, ScanStep, Step};
+use crate::plan::{Ladder, Plan, ScanEngine, ScanStep, Step};
 use crate::script::Script;
 use crate::units::format_number;
 use crate::workspace::{Column, Figure, FigureSeries, Model, Provenance, Table, Value, Workspace};
@@ -196,9 +189,9 @@ impl Runner<'_> {
             ));
         }
         if scan.summary {
-            emit(Output::Stream {
-                text: summary(scan, &table, started.elapsed()),
-            });
+            let mut text = summary(scan, &table, started.elapsed());
+            text.push_str(&equilibration_warnings(scan, &result));
+            emit(Output::Stream { text });
         }
         Ok(())
     }
@@ -541,15 +534,13 @@ pub struct ScanOutcome {
     pub entropy: Option<Vec<EntropyPoint>>,
     /// Why the entropy column is empty, when it is.
     pub entropy_note: Option<String>,
+    /// Swap statistics per neighbouring pair of the sorted ladder (tempering only).
+    pub pair_exchanges: Vec<PairExchange>,
 }
 
-/// One finished temperature.
-#[derive(Clone, Debug)]
-pub struct ScanRecord {
-    pub point: ScanPoint,
-    /// ⟨M⟩·n̂/N along the field direction (general engine with a field only).
-    pub magnetisation_along: Option<Estimate>,
-}
+/// One finished temperature (stdlib's record of a coupling-table scan; nearest-neighbour
+/// points are wrapped in it without a projected magnetisation).
+pub type ScanRecord = GeneralScanPoint;
 
 /// Runs a scan on a worker thread while this thread forwards throttled progress.
 fn run_with_progress(
@@ -601,7 +592,7 @@ pub fn run_scan_step(
     interrupt: &Interrupt,
     progress: ProgressFn,
 ) -> Result<ScanOutcome, String> {
-    let (points, interrupted, tail) = match &scan.engine {
+    let (points, interrupted, tail, pair_exchanges) = match &scan.engine {
         ScanEngine::NearestNeighbour => {
             let result =
                 run_scan(&scan.settings, interrupt, progress).map_err(|e| e.to_string())?;
@@ -620,15 +611,41 @@ pub fn run_scan_step(
                     magnetisation_along: None,
                 })
                 .collect();
-            (points, result.interrupted, tail)
+            (points, result.interrupted, tail, Vec::new())
         }
-        ScanEngine::General(model) => run_general_scan(&scan.settings, model, interrupt, progress)?,
+        ScanEngine::SquareIce => {
+            let result = run_square_ice_scan(&scan.settings, interrupt, progress)
+                .map_err(|e| e.to_string())?;
+            let tail = SquareIce::new(scan.settings.cells_per_side)
+                .ok_or_else(|| "square ice needs at least 3 vertices per side".to_string())?
+                .high_temperature_tail(scan.settings.model.j_eff_kelvin);
+            let points = result
+                .points
+                .into_iter()
+                .map(|point| ScanRecord {
+                    point,
+                    magnetisation_along: None,
+                })
+                .collect();
+            (points, result.interrupted, tail, Vec::new())
+        }
+        ScanEngine::General(model) => {
+            let result = run_general_scan(&scan.settings, model, interrupt, progress)
+                .map_err(|e| e.to_string())?;
+            (
+                result.points,
+                result.interrupted,
+                result.high_temperature_tail,
+                result.pair_exchanges,
+            )
+        }
     };
     let mut outcome = ScanOutcome {
         points,
         interrupted,
         entropy: None,
         entropy_note: None,
+        pair_exchanges,
     };
     if scan.measures.contains(&Measure::Entropy) {
         let energies: Vec<EnergyPoint> = outcome
@@ -649,210 +666,17 @@ pub fn run_scan_step(
     Ok(outcome)
 }
 
-/// The coupling table of a general model: exchange shells, the Ewald-summed dipolar term
-/// (conducting boundary; de Leeuw, Perram & Smith, Proc. R. Soc. A 373, 27 (1980)) and the
-/// Zeeman term, added into one translation-invariant table.
-pub fn coupling_table(lat: &Pyrochlore, model: &GeneralModel) -> Result<CouplingTable, String> {
-    let mut table = CouplingTable::zero(lat).map_err(|e| e.to_string())?;
-    if let Some(exchange) = &model.exchange {
-        exchange
-            .add_to(lat, &mut table)
-            .map_err(|e| e.to_string())?;
-    }
-    if let Some(d_kelvin) = model.dipolar_kelvin {
-        DipolarInteraction {
-            d_kelvin,
-            accuracy: DEFAULT_EWALD_ACCURACY,
-        }
-        .add_to(lat, &mut table)
-        .map_err(|e| e.to_string())?;
-    }
-    if let Some(zeeman) = &model.zeeman {
-        zeeman.add_to(&mut table).map_err(|e| e.to_string())?;
-    }
-    Ok(table)
-}
-
-/// A scalar series stored as means of bins (bounded memory; adjacent bins merge when
-/// full, which keeps the mean exact and only removes blocking levels below the bin width).
-struct BinnedSeries {
-    bins: Vec<f64>,
-    width: usize,
-    partial: f64,
-    count: usize,
-}
-
-impl BinnedSeries {
-    fn new() -> Self {
-        BinnedSeries {
-            bins: Vec::new(),
-            width: 1,
-            partial: 0.0,
-            count: 0,
-        }
-    }
-    fn push(&mut self, value: f64) {
-        self.partial += value;
-        self.count += 1;
-        if self.count == self.width {
-            self.bins.push(self.partial / self.width as f64);
-            self.partial = 0.0;
-            self.count = 0;
-            if self.bins.len() >= MAX_STORED_SAMPLES {
-                self.bins = self
-                    .bins
-                    .chunks_exact(2)
-                    .map(|p| 0.5 * (p[0] + p[1]))
-                    .collect();
-                self.width *= 2;
-            }
-        }
-    }
-    /// Mean with a Flyvbjerg–Petersen blocking error (J. Chem. Phys. 91, 461 (1989)).
-    fn estimate(&self) -> Option<Estimate> {
-        blocking_analysis(&self.bins).map(|b| b.estimate())
-    }
-}
-
-/// Finished temperatures, whether the scan was interrupted, and the model's
-/// high-temperature tail (for the entropy).
-type GeneralScan = (Vec<ScanRecord>, bool, HighTemperatureTail);
-
-/// A temperature scan of a coupling-table model with the local-field engine, in parallel
-/// over temperatures; temperature `i` draws from stream `i` of the seed, so the numbers do
-/// not depend on the number of threads. The interrupt is polled before every sweep;
-/// finished temperatures are kept.
-pub fn run_general_scan(
-    settings: &ScanSettings,
-    model: &GeneralModel,
-    interrupt: &Interrupt,
-    progress: ProgressFn,
-) -> Result<GeneralScan, String> {
-    let lat = Pyrochlore::new(settings.cells_per_side).map_err(|e| e.to_string())?;
-    let table = coupling_table(&lat, model)?;
-    let n = lat.spin_count() as f64;
-    let tail = HighTemperatureTail {
-        infinite_temperature_energy_per_spin_kelvin: table.constant_energy_kelvin() / n,
-        energy_variance_per_spin_kelvin2: table.infinite_temperature_energy_variance_per_spin(),
-    };
-    let total = settings
-        .equilibration_sweeps
-        .saturating_add(settings.measurement_sweeps)
-        .saturating_mul(settings.temperatures_kelvin.len() as u64);
-    let counter = SharedProgress::start(PROGRESS_LABEL, total, progress);
-    let streams = RngStreams::new(settings.seed);
-    let outcomes: Vec<Result<Option<ScanRecord>, String>> = settings
-        .temperatures_kelvin
-        .par_iter()
-        .enumerate()
-        .map(|(index, &t)| {
-            let rng = streams.stream(index as u64);
-            general_temperature(&lat, &table, settings, model, t, rng, interrupt, &counter)
-        })
-        .collect();
-    let mut points = Vec::new();
-    let mut complete = true;
-    for outcome in outcomes {
-        match outcome? {
-            Some(record) => points.push(record),
-            None => complete = false,
-        }
-    }
-    Ok((points, !complete, tail))
-}
-
-/// One temperature of the general scan; `Ok(None)` if interrupted before it finished.
-#[allow(clippy::too_many_arguments)]
-fn general_temperature(
-    lat: &Pyrochlore,
-    table: &CouplingTable,
-    settings: &ScanSettings,
-    model: &GeneralModel,
-    temperature_kelvin: f64,
-    mut rng: SpinRng,
-    interrupt: &Interrupt,
-    counter: &SharedProgress,
-) -> Result<Option<ScanRecord>, String> {
-    if interrupt.is_requested() {
-        return Ok(None);
-    }
-    let sigma = initial_configuration(lat, settings.start, &mut rng);
-    let mut sampler =
-        LocalFieldSampler::new(lat, table, temperature_kelvin, model.rule, sigma, rng)
-            .map_err(|e| e.to_string())?;
-    let mut loops = (model.loops_per_sweep > 0).then(|| LoopMoves::new(lat));
-    // One sweep: N single-flip attempts, then the loop moves (Barkema & Newman, Phys. Rev.
-    // E 57, 1155 (1998); Melko, den Hertog & Gingras, Phys. Rev. Lett. 87, 067203 (2001)),
-    // accepted with Metropolis on the full energy change.
-    let mut sweep = |sampler: &mut LocalFieldSampler<'_>| -> u64 {
-        let accepted = sampler.sweep();
-        if let Some(moves) = loops.as_mut() {
-            for _ in 0..model.loops_per_sweep {
-                moves.attempt(sampler);
-            }
-        }
-        accepted
-    };
-    for _ in 0..settings.equilibration_sweeps {
-        if interrupt.is_requested() {
-            return Ok(None);
-        }
-        sweep(&mut sampler);
-        counter.unit_done();
-    }
-    // Recompute the energy from the fields so rounding accumulated while equilibrating
-    // does not enter the measurement.
-    sampler.resynchronise_energy();
-    let mut series = ThermodynamicSeries::new(lat.spin_count(), lat.tetrahedron_count());
-    let mut along = model.direction.map(|_| BinnedSeries::new());
-    let n = lat.spin_count() as f64;
-    let mut accepted = 0u64;
-    let mut attempted = 0u64;
-    for index in 1..=settings.measurement_sweeps {
-        if interrupt.is_requested() {
-            return Ok(None);
-        }
-        accepted += sweep(&mut sampler);
-        attempted += lat.spin_count() as u64;
-        if index % settings.sample_every_sweeps == 0 {
-            let charges = sampler.charge_counts();
-            let m = sampler.magnetisation();
-            series.push(&Sample {
-                energy_kelvin: sampler.energy_kelvin(),
-                magnetisation: m,
-                single_charges: charges.single,
-                double_charges: charges.double,
-            });
-            if let (Some(s), Some(d)) = (along.as_mut(), model.direction) {
-                s.push((m[0] * d[0] + m[1] * d[1] + m[2] * d[2]) / n);
-            }
-        }
-        counter.unit_done();
-    }
-    let Some(th) = series.thermodynamics(temperature_kelvin) else {
-        return Err(format!(
-            "too few samples at T = {} K for error bars",
-            format_number(temperature_kelvin)
-        ));
-    };
-    let point = ScanPoint::from_thermodynamics(
-        temperature_kelvin,
-        &th,
-        accepted as f64 / attempted.max(1) as f64,
-        settings.sample_every_sweeps,
-    );
-    Ok(Some(ScanRecord {
-        point,
-        magnetisation_along: along.and_then(|s| s.estimate()),
-    }))
-}
-
 fn point_value(record: &ScanRecord, measure: Measure) -> (f64, Option<f64>) {
     let point = &record.point;
     let estimate = |e: &Estimate| (e.mean, Some(e.error));
     match measure {
         Measure::Energy => estimate(&point.energy_per_spin_kelvin),
         Measure::SpecificHeat => estimate(&point.specific_heat_per_spin),
+        Measure::SpecificHeatMolar => estimate(
+            &point
+                .specific_heat_per_spin
+                .scaled(GAS_CONSTANT_JOULE_PER_MOLE_KELVIN),
+        ),
         Measure::Magnetisation => estimate(&point.magnetisation_per_spin),
         Measure::Susceptibility => estimate(&point.susceptibility_per_spin),
         Measure::MonopoleDensity => estimate(&point.monopole_density_per_spin),
@@ -938,14 +762,53 @@ pub fn scan_table(scan: &ScanStep, result: &ScanOutcome, cell: u64) -> Table {
             derived_from: None,
         });
     }
+    let diagnostic = |pick: &dyn Fn(&EnergyDiagnostics) -> f64| -> Vec<f64> {
+        result
+            .points
+            .iter()
+            .map(|r| r.point.diagnostics.as_ref().map(pick).unwrap_or(f64::NAN))
+            .collect()
+    };
+    let picks: [&dyn Fn(&EnergyDiagnostics) -> f64; 2] =
+        [&|d| d.tau_int_sweeps, &|d| d.drift_sigma];
+    for ((name, unit, _), pick) in DIAGNOSTIC_COLUMNS.iter().zip(picks) {
+        columns.push(Column {
+            name: name.to_string(),
+            unit: unit.to_string(),
+            values: diagnostic(pick),
+            errors: None,
+            derived_from: None,
+        });
+    }
+    if is_tempering(scan) {
+        columns.push(Column {
+            name: EXCHANGE_COLUMN.0.to_string(),
+            unit: EXCHANGE_COLUMN.1.to_string(),
+            values: result
+                .points
+                .iter()
+                .map(|r| exchange_acceptance(result, r.point.temperature_kelvin))
+                .collect(),
+            errors: None,
+            derived_from: None,
+        });
+    }
     let settings = &scan.settings;
     let source = match &scan.engine {
         ScanEngine::NearestNeighbour => "Metropolis temperature scan".to_string(),
+        ScanEngine::SquareIce => {
+            "Metropolis temperature scan of square ice (H = J Σ_v q_v², J = J_eff)".to_string()
+        }
         ScanEngine::General(model) => format!(
-            "{} temperature scan on the coupling-table engine{}{}",
+            "{} {} on the coupling-table engine{}{}",
             match model.rule {
                 icefield_stdlib::engine::FlipRule::Metropolis => "Metropolis",
                 icefield_stdlib::engine::FlipRule::HeatBath => "heat-bath",
+            },
+            match model.ladder {
+                Ladder::Independent => "temperature scan",
+                Ladder::Tempering => "parallel-tempering temperature scan",
+                Ladder::Anneal => "anneal (state carried from each temperature to the next)",
             },
             if model.loops_per_sweep > 0 {
                 format!(", {} loop moves per sweep", model.loops_per_sweep)
@@ -977,6 +840,68 @@ pub fn scan_table(scan: &ScanStep, result: &ScanOutcome, cell: u64) -> Table {
         }),
     }
 }
+
+fn is_tempering(scan: &ScanStep) -> bool {
+    matches!(&scan.engine, ScanEngine::General(m) if m.ladder == Ladder::Tempering)
+}
+
+/// The swap acceptance of the temperature `t` with the next higher one of the ladder.
+fn exchange_acceptance(result: &ScanOutcome, temperature_kelvin: f64) -> f64 {
+    result
+        .pair_exchanges
+        .iter()
+        .find(|p| p.lower_temperature_kelvin == temperature_kelvin)
+        .map(|p| p.acceptance_rate())
+        .unwrap_or(f64::NAN)
+}
+
+/// Warning lines about temperatures whose runs look too short, and tempering pairs that
+/// hardly swap.
+fn equilibration_warnings(scan: &ScanStep, result: &ScanOutcome) -> String {
+    let sweeps = scan.settings.measurement_sweeps;
+    let mut short = Vec::new();
+    let mut first_reason = None;
+    for r in &result.points {
+        if let Some(reason) = r.point.diagnostics.and_then(|d| d.concern(sweeps)) {
+            short.push(format_number(r.point.temperature_kelvin));
+            first_reason.get_or_insert(reason);
+        }
+    }
+    let mut text = String::new();
+    if let Some(reason) = first_reason {
+        text.push_str(&format!(
+            "warning: the run looks too short at T = {} K (at the first: {reason}); see the \
+             columns tau_int_energy and drift_sigma, and raise `sweeps` or `equilibrate` \
+             (or add `loops = N` at low temperature)\n",
+            short.join(", ")
+        ));
+    }
+    let stuck: Vec<String> = result
+        .pair_exchanges
+        .iter()
+        .filter(|p| p.acceptance_rate() < MIN_EXCHANGE_ACCEPTANCE)
+        .map(|p| {
+            format!(
+                "{}–{} K ({:.3})",
+                format_number(p.lower_temperature_kelvin),
+                format_number(p.upper_temperature_kelvin),
+                p.acceptance_rate()
+            )
+        })
+        .collect();
+    if !stuck.is_empty() {
+        text.push_str(&format!(
+            "warning: tempering pairs that rarely swap (acceptance below {MIN_EXCHANGE_ACCEPTANCE}): \
+             {}; add temperatures between them\n",
+            stuck.join(", ")
+        ));
+    }
+    text
+}
+
+/// Swap acceptance below which a tempering pair is flagged (common practice: about 0.2 to
+/// 0.3 is the usual aim, a pair far below it splits the ladder).
+pub const MIN_EXCHANGE_ACCEPTANCE: f64 = 0.1;
 
 fn summary(scan: &ScanStep, table: &Table, elapsed: Duration) -> String {
     let t = &scan.settings.temperatures_kelvin;
