@@ -28,7 +28,11 @@ pub enum Family {
 }
 
 /// Runnable command keywords and their family.
-pub const COMMANDS: &[(&str, Family)] = &[];
+pub const COMMANDS: &[(&str, Family)] = &[
+    ("monopoles", Family::Monopoles),
+    ("reachable", Family::Monopoles),
+    ("cluster", Family::Monopoles),
+];
 
 /// The family of a runnable command keyword.
 pub fn family(keyword: &str) -> Option<Family> {

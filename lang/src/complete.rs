@@ -1,6 +1,7 @@
 //! Completion, inspection targets and the completeness test a console uses to decide
 //! whether Enter runs the cell. All positions count Unicode code points.
 
+use crate::check::monopoles;
 use crate::check::{
     ACCEPTANCE_RULES, COUPLING_KINDS, DIPOLAR_OPTIONS, EXCHANGE_OPTIONS, FIELD_OPTIONS,
     LATTICE_KINDS, LATTICE_OPTIONS, NEAREST_OPTIONS, PLOT_OPTIONS, SCAN_OPTIONS, START_STATES,
@@ -95,6 +96,7 @@ fn values_for(option: &str) -> &'static [&'static str] {
         "errors" => &["on", "off"],
         "convention" => &["vector", "ising"],
         "acceptance" => ACCEPTANCE_RULES,
+        "mode" => crate::check::monopoles::REACH_MODES,
         _ => &[],
     }
 }
@@ -212,6 +214,24 @@ pub fn complete(
                     push_all(&mut candidates, table_names.iter().map(String::as_str))
                 }
                 "table" => push_all(&mut candidates, TABLE_OPTIONS.iter().copied()),
+                "monopoles" => {
+                    push_all(
+                        &mut candidates,
+                        monopoles::MONOPOLES_OPTIONS.iter().copied(),
+                    );
+                    push_all(&mut candidates, ["for", "at"]);
+                }
+                "reachable" => {
+                    push_all(
+                        &mut candidates,
+                        monopoles::REACHABLE_OPTIONS.iter().copied(),
+                    );
+                    push_all(&mut candidates, ["within", "at", "hops"]);
+                }
+                "cluster" => {
+                    push_all(&mut candidates, monopoles::CLUSTER_OPTIONS.iter().copied());
+                    push_all(&mut candidates, ["within", "at", "hops"]);
+                }
                 "show" => {
                     push_all(&mut candidates, names.iter().map(String::as_str));
                     push_all(&mut candidates, RESERVED_SHOW_NAMES.iter().copied());

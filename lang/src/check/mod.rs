@@ -242,6 +242,8 @@ struct View {
     couplings: bool,
     /// A field with a direction is declared (so `magnetisation_along` has a meaning).
     field_direction: bool,
+    /// A dynamics rule is declared (the monopole commands follow it).
+    dynamics: bool,
     measures: Vec<Measure>,
     /// The measures were chosen by a `measure` statement (not the default set).
     measures_chosen: bool,
@@ -282,6 +284,7 @@ impl View {
                 .field
                 .as_ref()
                 .is_some_and(|f| f.direction.is_some()),
+            dynamics: workspace.model.dynamics.is_some(),
             measures_chosen: workspace.model.measures.is_some(),
             measures: workspace
                 .model
@@ -317,6 +320,7 @@ impl View {
             "lattice" => self.lattice = true,
             "couplings" => self.couplings = true,
             "field" => self.field_direction = true,
+            "dynamics" => self.dynamics = true,
             "rhai" => self.lenient_script = true,
             "column" => {
                 if let Some((table, column)) =
@@ -377,6 +381,11 @@ pub fn check(
         }
         let before = checker.problems.len();
         let step = checker.statement(statement, &mut view);
+        // A `dynamics` statement declares the rule later statements follow, even when it
+        // has errors (so they get no follow-up error).
+        if statement.keyword.name == "dynamics" {
+            view.dynamics = true;
+        }
         if let Some(step) = step {
             if checker.problems.len() == before {
                 steps.push(CheckedStatement {
