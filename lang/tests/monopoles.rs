@@ -115,6 +115,7 @@ fn an_isolated_monopole_hops_three_times_per_attempt_time() {
     // flip creates charge at a cost ≥ 4 J_eff (never accepted at 0.05 K). Poisson counting
     // error, 3σ.
     let (rate, error, msd, msd_error) = isolated_pair(AcceptanceRule::Metropolis, 160);
+    eprintln!("Metropolis: {rate} ± {error} hops per τ0; msd(0.01 τ0) = {msd} ± {msd_error} bond²");
     assert!(
         (rate - 3.0).abs() < 3.0 * error,
         "Metropolis: {rate} ± {error} hops per τ0"
@@ -129,6 +130,7 @@ fn an_isolated_monopole_hops_three_times_per_attempt_time() {
     );
     // Glauber accepts a ΔE = 0 flip with 1/(1 + e^0) = ½: 1.5 hops per τ0 (derived).
     let (rate, error, _, _) = isolated_pair(AcceptanceRule::Glauber, 160);
+    eprintln!("Glauber: {rate} ± {error} hops per τ0");
     assert!(
         (rate - 1.5).abs() < 3.0 * error,
         "Glauber: {rate} ± {error} hops per τ0"
@@ -208,6 +210,12 @@ fn closing_the_h_perp_zero_class_can_only_remove_reachable_sites() {
     }
     let one_hop = values(b, "sites_path")[1];
     let error = errors(b, "sites_path")[1];
+    eprintln!(
+        "gated: path {:?}, static {:?}; open: path {:?}",
+        values(b, "sites_path"),
+        values(b, "sites_static"),
+        values(a, "sites_path")
+    );
     assert!(
         one_hop < 4.0 - 3.0 * error.max(1e-3),
         "one-hop count with gates {one_hop} ± {error}"

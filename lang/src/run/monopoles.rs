@@ -49,6 +49,8 @@ const STEPS_PER_POLL: u64 = 1 << 16;
 /// Diamond bond (hop) length squared in units of a²: (√3 a/4)² (physics-reference §1,
 /// derived). Positions from stdlib are in units of a.
 const BOND_SQUARED_IN_A2: f64 = 3.0 / 16.0;
+/// A tracking table longer than this is summarised instead of shown.
+const SHOWN_ROWS: usize = 30;
 /// Random starts tried when placing a monopole pair.
 const PAIR_ATTEMPTS: usize = 10_000;
 /// Stream indices of the seed (stdlib `RngStreams`): one per use, so that each use draws
@@ -136,6 +138,14 @@ impl Equilibrator<'_> {
             Equilibrator::General { sampler, .. } => sampler.sigma(),
         }
     }
+}
+
+/// The clusters drawn by `reachable` / `cluster`, one list per mode.
+struct Drawn {
+    clusters: Vec<Vec<ReachableCluster>>,
+    /// The open gate classes of the rule.
+    open: [bool; GATE_CLASS_COUNT],
+    interrupted: bool,
 }
 
 /// Sends progress at most every `PROGRESS_INTERVAL`.
@@ -594,7 +604,7 @@ impl Runner<'_> {
         let source = format!(
             "monopole tracking: {} at {} K sampled every {}; dynamics {}, {}, {execution_text}; \
              {} hops{}, {} pair creations, {} annihilations; msd in units of the diamond bond (hop) \
-             length squared, (√3 a/4)²",
+             length squared, (√3 a/4)²; start: {}",
             seconds(spec.duration_seconds),
             format_number(t),
             seconds(dt),
@@ -612,6 +622,7 @@ impl Runner<'_> {
             },
             history.creations,
             history.annihilations,
+            describe_preparation(&spec.preparation, t),
         );
         let provenance = Provenance {
             source,
@@ -678,7 +689,20 @@ impl Runner<'_> {
             .insert(&spec.target, Value::Table(main.clone()));
         self.workspace
             .insert(&gates_name, Value::Table(gates.clone()));
-        emit(Output::Display(display::table(&main, None)));
+        if main.row_count() <= SHOWN_ROWS {
+            emit(Output::Display(display::table(&main, None)));
+        } else {
+            emit(Output::Stream {
+                text: format!(
+                    "{name}: {rows} grid times from 0 to {end}; columns t [s], msd [bond²], distinct_sites, \
+                     monopoles, hops\nshow it with `table {name}` or `plot {name}.msd against t, xscale = log, \
+                     yscale = log`\n",
+                    name = spec.target,
+                    rows = main.row_count(),
+                    end = seconds(values_last(&main)),
+                ),
+            });
+        }
         emit(Output::Display(display::table(&gates, None)));
         if interrupted {
             return Err(self.interrupted(
@@ -710,7 +734,7 @@ impl Runner<'_> {
         target: &str,
         keyword: Span,
         emit: &mut dyn FnMut(Output),
-    ) -> Result<(Vec<Vec<ReachableCluster>>, [bool; GATE_CLASS_COUNT], bool), CellError> {
+    ) -> Result<Drawn, CellError> {
         let lat =
             Pyrochlore::new(km.cells_per_side).map_err(|e| self.runtime(keyword, e.to_string()))?;
         let streams = RngStreams::new(km.seed);
@@ -735,17 +759,29 @@ impl Runner<'_> {
             &mut throttle,
             emit,
         ) {
-            return Ok((clusters, open, true));
+            return Ok(Drawn {
+                clusters,
+                open,
+                interrupted: true,
+            });
         }
         let separation = preparation.pair_separation_hops.unwrap_or(2);
         let mut draws = Draws::new(streams.stream_key(STREAM_PAIRS));
         let label = format!("{target}: reachable-site samples");
         for sample in 0..samples {
             if self.interrupt.is_requested() {
-                return Ok((clusters, open, true));
+                return Ok(Drawn {
+                    clusters,
+                    open,
+                    interrupted: true,
+                });
             }
             if sample > 0 && !self.sweeps(&mut equilibrator, between, &label, &mut throttle, emit) {
-                return Ok((clusters, open, true));
+                return Ok(Drawn {
+                    clusters,
+                    open,
+                    interrupted: true,
+                });
             }
             let mut sigma = equilibrator.sigma().to_vec();
             let Some(plus) = place_pair(&lat, &mut sigma, &mut draws, separation) else {
@@ -762,7 +798,11 @@ impl Runner<'_> {
             }
             throttle.report(emit, &label, sample + 1, samples);
         }
-        Ok((clusters, open, false))
+        Ok(Drawn {
+            clusters,
+            open,
+            interrupted: false,
+        })
     }
 
     fn reachable(
@@ -780,7 +820,11 @@ impl Runner<'_> {
         if spec.modes.r#static() {
             modes.push(ReachMode::StaticSnapshot);
         }
-        let (clusters, open, interrupted) = self.clusters(
+        let Drawn {
+            clusters,
+            open,
+            interrupted,
+        } = self.clusters(
             &km,
             &spec.preparation,
             spec.temperature_kelvin,
@@ -824,13 +868,15 @@ impl Runner<'_> {
         }
         let source = format!(
             "reachable diamond sites within n hops: {kept} of {} samples, each from the +1 end of a monopole pair \
-             {} hops apart placed in a state prepared at {} K; open gate classes {} (attempt time at most {}× the \
-             fastest) of the rule {}; sites_path: path-dependent search (each hop flips its spin, which changes \
-             the gates of the next), sites_static: static-snapshot approximation (the gates of the snapshot); \
-             mean ± standard error over samples",
+             {} hops apart placed in a state prepared at {} K (start: {}; {} sweeps between samples); open gate \
+             classes {} (attempt time at most {}× the fastest) of the rule {}; sites_path: path-dependent search \
+             (each hop flips its spin, which changes the gates of the next), sites_static: static-snapshot \
+             approximation (the gates of the snapshot); mean ± standard error over samples",
             spec.samples,
             spec.preparation.pair_separation_hops.unwrap_or(2),
             format_number(spec.temperature_kelvin),
+            describe_preparation(&spec.preparation, spec.temperature_kelvin),
+            spec.decorrelation_sweeps,
             describe_open(open),
             format_number(spec.open_ratio),
             km.dynamics.rates_description,
@@ -880,7 +926,11 @@ impl Runner<'_> {
         } else {
             ReachMode::StaticSnapshot
         };
-        let (clusters, open, interrupted) = self.clusters(
+        let Drawn {
+            clusters,
+            open,
+            interrupted,
+        } = self.clusters(
             &km,
             &spec.preparation,
             spec.temperature_kelvin,
@@ -962,6 +1012,14 @@ fn mean_distinct_sites(tracker: &MonopoleTracker<'_>, initial: usize) -> f64 {
     } else {
         sum as f64 / alive as f64
     }
+}
+
+/// The last grid time of a tracking table.
+fn values_last(table: &Table) -> f64 {
+    table
+        .column("t")
+        .and_then(|c| c.values.last().copied())
+        .unwrap_or(0.0)
 }
 
 fn execution(choice: ExecutionChoice) -> (Execution, &'static str) {
