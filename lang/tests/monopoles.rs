@@ -164,6 +164,13 @@ fn static_counts_with_every_gate_open_are_the_diamond_crystal_ball() {
     assert_eq!(path[0], 1.0);
     assert_eq!(path[1], 4.0);
     assert_eq!(errors(r, "sites_path")[1], 0.0);
+    // Two hops (derived): each of the two fresh neighbours, entered on a spin that the hop
+    // flips to point out, offers its two other out spins; the string's previous
+    // tetrahedron, with the string's last spin flipped back, offers two as well (the
+    // string spin before it and its other out spin); distance-2 sites of the diamond are
+    // all distinct, so 1 + 3 + 2·2 + 2 = 10 for every sample.
+    assert_eq!(path[2], 10.0);
+    assert_eq!(errors(r, "sites_path")[2], 0.0);
     for (p, s) in path.iter().zip(values(r, "sites_static")) {
         assert!(p <= s, "path {p} > static {s}");
     }
