@@ -39,6 +39,9 @@ pub const COMMANDS: &[(&str, Family)] = &[
     ("step", Family::Dynamics),
     ("anneal", Family::Equilibrium),
     ("structure_factor", Family::Equilibrium),
+    ("monopoles", Family::Monopoles),
+    ("reachable", Family::Monopoles),
+    ("cluster", Family::Monopoles),
 ];
 
 /// The family of a runnable command keyword.

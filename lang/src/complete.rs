@@ -6,6 +6,7 @@ use crate::check::dynamics::{
     DYNAMICS_ACCEPTANCE_RULES, DYNAMICS_OPTIONS, DYNAMICS_RULES, EVOLVE_OPTIONS, EXECUTION_CHOICES,
     QUENCH_OPTIONS, RATE_KINDS, STEP_OPTIONS, TRANSVERSE_SOURCES,
 };
+use crate::check::monopoles;
 use crate::check::{
     ACCEPTANCE_RULES, COUPLING_KINDS, DIPOLAR_OPTIONS, EXCHANGE_OPTIONS, FIELD_OPTIONS,
     LATTICE_KINDS, LATTICE_OPTIONS, NEAREST_OPTIONS, PLOT_OPTIONS, SCAN_OPTIONS, START_STATES,
@@ -107,6 +108,7 @@ fn values_for(option: &str) -> &'static [&'static str] {
         "execution" => EXECUTION_CHOICES,
         "transverse" => TRANSVERSE_SOURCES,
         "slow" => &["frozen"],
+        "mode" => crate::check::monopoles::REACH_MODES,
         _ => &[],
     }
 }
@@ -253,6 +255,24 @@ pub fn complete(
                     push_all(&mut candidates, table_names.iter().map(String::as_str))
                 }
                 "table" => push_all(&mut candidates, TABLE_OPTIONS.iter().copied()),
+                "monopoles" => {
+                    push_all(
+                        &mut candidates,
+                        monopoles::MONOPOLES_OPTIONS.iter().copied(),
+                    );
+                    push_all(&mut candidates, ["for", "at"]);
+                }
+                "reachable" => {
+                    push_all(
+                        &mut candidates,
+                        monopoles::REACHABLE_OPTIONS.iter().copied(),
+                    );
+                    push_all(&mut candidates, ["within", "at", "hops"]);
+                }
+                "cluster" => {
+                    push_all(&mut candidates, monopoles::CLUSTER_OPTIONS.iter().copied());
+                    push_all(&mut candidates, ["within", "at", "hops"]);
+                }
                 "show" => {
                     push_all(&mut candidates, names.iter().map(String::as_str));
                     push_all(&mut candidates, RESERVED_SHOW_NAMES.iter().copied());

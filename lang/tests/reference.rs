@@ -77,6 +77,16 @@ fn reference_examples_check_or_are_marked_planned() {
         &format!("{TINY_MODEL}thermo = scan T at [1, 2] K, sweeps = 40, equilibrate = 10\ncool = scan T at [1, 2] K, sweeps = 40, equilibrate = 10"),
     );
     analysis_tables(&mut session);
+    // A dynamics rule, as a `dynamics` statement declares it, for the commands that follow
+    // one (each example statement is checked on its own).
+    session.workspace_mut().model.dynamics = Some(icefield_lang::workspace::DynamicsDecl {
+        acceptance: icefield_stdlib::dynamics::AcceptanceRule::Metropolis,
+        attempt_times: icefield_stdlib::gating::AttemptTimes::uniform(1e-6).unwrap(),
+        rates_description: "uniform, τ0 = 1 µs".into(),
+        execution: icefield_lang::workspace::ExecutionChoice::Auto,
+        transverse: icefield_lang::workspace::TransverseSource::Neighbours,
+        rate_law: None,
+    });
     let mut checked = 0;
     for block in &blocks {
         let parts = split(block);

@@ -261,6 +261,8 @@ struct View {
     general_couplings: bool,
     /// A field with a direction is declared (so `magnetisation_along` has a meaning).
     field_direction: bool,
+    /// A dynamics rule is declared (the monopole commands follow it).
+    dynamics: bool,
     measures: Vec<Measure>,
     /// The measures were chosen by a `measure` statement (not the default set).
     measures_chosen: bool,
@@ -268,8 +270,6 @@ struct View {
     variables: Vec<String>,
     /// A rhai block of the cell failed to parse: accept unknown functions and variables.
     lenient_script: bool,
-    /// A dynamics rule is declared (physical-time runs need one).
-    dynamics: bool,
 }
 
 impl View {
@@ -309,6 +309,7 @@ impl View {
                 .field
                 .as_ref()
                 .is_some_and(|f| f.direction.is_some()),
+            dynamics: workspace.model.dynamics.is_some(),
             measures_chosen: workspace.model.measures.is_some(),
             measures: workspace
                 .model
@@ -318,7 +319,6 @@ impl View {
             functions: script.functions(),
             variables: script.variables(),
             lenient_script: false,
-            dynamics: workspace.model.dynamics.is_some(),
         }
     }
     fn get(&self, name: &str) -> Option<&NameView> {
@@ -348,8 +348,8 @@ impl View {
             }
             "couplings" => self.couplings = true,
             "field" => self.field_direction = true,
-            "rhai" => self.lenient_script = true,
             "dynamics" => self.dynamics = true,
+            "rhai" => self.lenient_script = true,
             "column" => {
                 if let Some((table, column)) =
                     failed.target.as_ref().and_then(|t| t.split_once('.'))
@@ -409,6 +409,11 @@ pub fn check(
         }
         let before = checker.problems.len();
         let step = checker.statement(statement, &mut view);
+        // A `dynamics` statement declares the rule later statements follow, even when it
+        // has errors (so they get no follow-up error).
+        if statement.keyword.name == "dynamics" {
+            view.dynamics = true;
+        }
         if let Some(step) = step {
             if checker.problems.len() == before {
                 steps.push(CheckedStatement {
