@@ -95,6 +95,7 @@ fn values_for(option: &str) -> &'static [&'static str] {
         "errors" => &["on", "off"],
         "convention" => &["vector", "ising"],
         "acceptance" => ACCEPTANCE_RULES,
+        "format" => &["csv", "json", "whitespace"],
         _ => &[],
     }
 }
@@ -167,6 +168,7 @@ pub fn complete(
         };
         if trimmed.is_empty() {
             push_all(&mut candidates, KEYWORDS.iter().copied());
+            push_all(&mut candidates, crate::commands::keywords());
             push_all(&mut candidates, names.iter().map(String::as_str));
         } else if after_number {
             push_all(&mut candidates, UNITS.iter().map(|u| u.symbol));
@@ -212,6 +214,19 @@ pub fn complete(
                     push_all(&mut candidates, table_names.iter().map(String::as_str))
                 }
                 "table" => push_all(&mut candidates, TABLE_OPTIONS.iter().copied()),
+                "export" => push_all(
+                    &mut candidates,
+                    crate::check::EXPORT_OPTIONS.iter().copied(),
+                ),
+                "import" => push_all(&mut candidates, ["format"]),
+                "calibrate" if statement_words.contains(&"against") => push_all(
+                    &mut candidates,
+                    crate::check::data::CALIBRATE_OPTIONS.iter().copied(),
+                ),
+                "calibrate" => {
+                    push_all(&mut candidates, table_names.iter().map(String::as_str));
+                    push_all(&mut candidates, ["to", "against"]);
+                }
                 "show" => {
                     push_all(&mut candidates, names.iter().map(String::as_str));
                     push_all(&mut candidates, RESERVED_SHOW_NAMES.iter().copied());
@@ -230,6 +245,7 @@ pub fn complete(
                 "column" => push_all(&mut candidates, table_names.iter().map(String::as_str)),
                 _ => {
                     push_all(&mut candidates, KEYWORDS.iter().copied());
+                    push_all(&mut candidates, crate::commands::keywords());
                     push_all(&mut candidates, names.iter().map(String::as_str));
                     push_all(&mut candidates, MEASURES.iter().map(|m| m.name));
                     push_all(&mut candidates, functions.iter().map(String::as_str));

@@ -40,7 +40,6 @@ pub const PLANNED_KEYWORDS: &[(&str, &str)] = &[
     ("step", "Runs"),
     ("map", "Plots"),
     ("fit", "Fits"),
-    ("import", "Data import and export"),
 ];
 
 /// One statement's place in the cell.
@@ -969,6 +968,7 @@ fn build_statement(pair: Pair<Rule>, offset: usize) -> Statement {
             }
         }
         Rule::export_stmt => {
+            let options = take_options(&mut rest);
             let mut name = blank.clone();
             let mut path = (String::new(), span);
             for p in rest {
@@ -984,7 +984,11 @@ fn build_statement(pair: Pair<Rule>, offset: usize) -> Statement {
                     _ => {}
                 }
             }
-            StatementKind::Export { name, path }
+            StatementKind::Export {
+                name,
+                path,
+                options,
+            }
         }
         Rule::command_stmt => {
             let options = take_options(&mut rest);
