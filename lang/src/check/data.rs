@@ -1170,7 +1170,7 @@ mod tests {
             vec![
                 ("T".to_string(), Some("K".to_string()), 1),
                 ("c".to_string(), Some("J/(mol K)".to_string()), 8),
-                ("n".to_string(), Some(String::new()), 27)
+                ("n".to_string(), Some(String::new()), 23)
             ]
         );
     }
