@@ -75,8 +75,8 @@ pub struct CalibrateSpec {
 /// A resolved data command.
 #[derive(Clone, Debug, PartialEq)]
 pub enum DataSpec {
-    Import(ImportSpec),
-    Calibrate(CalibrateSpec),
+    Import(Box<ImportSpec>),
+    Calibrate(Box<CalibrateSpec>),
 }
 
 /// What `export` writes in its `# icefield-record:` comment.
@@ -915,12 +915,12 @@ impl Checker<'_> {
             ),
             None => view.set(&target, NameView::Opaque),
         }
-        Some(DataSpec::Import(ImportSpec {
+        Some(DataSpec::Import(Box::new(ImportSpec {
             target,
             path,
             format,
             error_columns,
-        }))
+        })))
     }
 
     fn check_calibrate(
@@ -1073,14 +1073,14 @@ impl Checker<'_> {
             ),
         );
         view.set(&format!("{target}_plot"), NameView::Figure);
-        Some(DataSpec::Calibrate(CalibrateSpec {
+        Some(DataSpec::Calibrate(Box::new(CalibrateSpec {
             target,
             simulated: (sim.0, sim.1),
             measured: (lab.0, lab.1),
             x_column: x.name.clone(),
             stated_tau0_seconds: tau0,
             range,
-        }))
+        })))
     }
 
     /// A `TABLE.COLUMN` of `calibrate`: (table, column, unit).
