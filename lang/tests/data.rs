@@ -569,6 +569,24 @@ fn calibration_reads_a_simulation_in_seconds_for_a_stated_attempt_time() {
     let value = table(&session, "cal").column("tau0").unwrap().values[0];
     let mean_eps = eps.iter().sum::<f64>() / eps.len() as f64;
     assert!((value.ln() - (tau0.ln() + sigma * mean_eps)).abs() < 1e-9);
+    // A dimensionless simulated τ with a stated τ0 is a contradiction, refused.
+    session.workspace_mut().insert(
+        "sim_units",
+        Value::Table(Table {
+            name: "sim_units".to_string(),
+            columns: vec![
+                column("T", "K", vec![0.5, 3.0], None),
+                column("tau", "", vec![100.0, 2.0], None),
+            ],
+            provenance: None,
+        }),
+    );
+    let error = fails(
+        &mut session,
+        "calibrate sim_units.tau to lab.tau against T, tau0 = 1 µs",
+    );
+    assert_eq!(error.kind, "UnitError");
+    assert_eq!(error.diagnostics[0].column, 11);
 }
 
 #[test]

@@ -733,6 +733,13 @@ pub fn units_agree(a: &str, b: &str) -> bool {
 /// How a simulated τ is read: its values times the returned factor are in units of τ0.
 pub fn simulated_tau_factor(unit: &str, stated_tau0_seconds: Option<f64>) -> Result<f64, String> {
     if TAU0_UNITS.contains(&unit) {
+        if stated_tau0_seconds.is_some() {
+            return Err(
+                "the simulated τ is already in units of τ0 (a pure number): `tau0` is only for \
+                 a simulated τ given in a time unit"
+                    .to_string(),
+            );
+        }
         return Ok(1.0);
     }
     match units::lookup(unit) {
@@ -1034,6 +1041,11 @@ impl Checker<'_> {
             return None;
         }
         let (target, sim, lab, tau0, range) = (target?, sim?, lab?, tau0?, range?);
+        let x_unit = view
+            .columns(&sim.0)
+            .and_then(|c| c.iter().find(|c| c.name == x.name))
+            .map(|c| c.unit.clone())
+            .unwrap_or_default();
         view.set(
             &target,
             NameView::Table(vec![
@@ -1058,7 +1070,7 @@ impl Checker<'_> {
             &format!("{target}_residuals"),
             NameView::Table(
                 [
-                    (x.name.as_str(), ""),
+                    (x.name.as_str(), x_unit.as_str()),
                     ("measured", "s"),
                     ("calibrated", "s"),
                     ("residual", ""),
