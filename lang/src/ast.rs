@@ -238,8 +238,12 @@ pub enum StatementKind {
         expr_text: String,
         unit: Option<(String, Span)>,
     },
-    /// `export thermo to "thermo.csv"`
-    Export { name: Ident, path: (String, Span) },
+    /// `export thermo to "thermo.csv"` [, format = csv|json]
+    Export {
+        name: Ident,
+        path: (String, Span),
+        options: Vec<Opt>,
+    },
     /// `[NAME =] KEYWORD PHRASE... [, options]`: the command statements (`evolve`, `fit`,
     /// `import`, ...); `Statement::keyword` is the command word. See `commands`.
     Command {

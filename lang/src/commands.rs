@@ -42,6 +42,8 @@ pub const COMMANDS: &[(&str, Family)] = &[
     ("monopoles", Family::Monopoles),
     ("reachable", Family::Monopoles),
     ("cluster", Family::Monopoles),
+    ("import", Family::Data),
+    ("calibrate", Family::Data),
 ];
 
 /// The family of a runnable command keyword.

@@ -109,6 +109,7 @@ fn values_for(option: &str) -> &'static [&'static str] {
         "transverse" => TRANSVERSE_SOURCES,
         "slow" => &["frozen"],
         "mode" => crate::check::monopoles::REACH_MODES,
+        "format" => &["csv", "json", "whitespace"],
         _ => &[],
     }
 }
@@ -272,6 +273,19 @@ pub fn complete(
                 "cluster" => {
                     push_all(&mut candidates, monopoles::CLUSTER_OPTIONS.iter().copied());
                     push_all(&mut candidates, ["within", "at", "hops"]);
+                }
+                "export" => push_all(
+                    &mut candidates,
+                    crate::check::EXPORT_OPTIONS.iter().copied(),
+                ),
+                "import" => push_all(&mut candidates, ["format"]),
+                "calibrate" if statement_words.contains(&"against") => push_all(
+                    &mut candidates,
+                    crate::check::data::CALIBRATE_OPTIONS.iter().copied(),
+                ),
+                "calibrate" => {
+                    push_all(&mut candidates, table_names.iter().map(String::as_str));
+                    push_all(&mut candidates, ["to", "against"]);
                 }
                 "show" => {
                     push_all(&mut candidates, names.iter().map(String::as_str));

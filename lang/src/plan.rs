@@ -71,6 +71,7 @@ pub enum Plan {
     Export {
         name: String,
         path: String,
+        format: crate::check::ExportFormat,
     },
     /// A command, with the model declaration in force when it runs.
     Command {
@@ -200,9 +201,10 @@ pub fn compile(checked: &[CheckedStatement], model: &Model) -> Result<Vec<Step>,
                 body_span: *body_span,
             },
             Checked::Column(column) => Plan::Column(column.clone()),
-            Checked::Export { name, path } => Plan::Export {
+            Checked::Export { name, path, format } => Plan::Export {
                 name: name.clone(),
                 path: path.clone(),
+                format: *format,
             },
             // Until every family has a command, `CommandSpec` has no values at all.
             #[allow(unreachable_code)]

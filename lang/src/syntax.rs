@@ -31,11 +31,7 @@ pub const KEYWORDS: &[&str] = &[
 
 /// Statement keywords of the designed language that later versions run (REFERENCE.md),
 /// with the section that describes them.
-pub const PLANNED_KEYWORDS: &[(&str, &str)] = &[
-    ("equilibrate", "Runs"),
-    ("map", "Plots"),
-    ("import", "Data import and export"),
-];
+pub const PLANNED_KEYWORDS: &[(&str, &str)] = &[("equilibrate", "Runs"), ("map", "Plots")];
 
 /// One statement's place in the cell.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
@@ -963,6 +959,7 @@ fn build_statement(pair: Pair<Rule>, offset: usize) -> Statement {
             }
         }
         Rule::export_stmt => {
+            let options = take_options(&mut rest);
             let mut name = blank.clone();
             let mut path = (String::new(), span);
             for p in rest {
@@ -978,7 +975,11 @@ fn build_statement(pair: Pair<Rule>, offset: usize) -> Statement {
                     _ => {}
                 }
             }
-            StatementKind::Export { name, path }
+            StatementKind::Export {
+                name,
+                path,
+                options,
+            }
         }
         Rule::command_stmt => {
             let options = take_options(&mut rest);

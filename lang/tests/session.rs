@@ -320,10 +320,11 @@ fn export_writes_csv_with_units_in_the_header() {
         &format!("export thermo to \"{}\"", path.display()),
     );
     let text = std::fs::read_to_string(&path).unwrap();
-    let mut lines = text.lines();
+    // Provenance comes first as `#` lines; every header carries a unit (`[]`: pure number).
+    let mut lines = text.lines().skip_while(|l| l.starts_with('#'));
     assert_eq!(
         lines.next().unwrap(),
-        "T [K],energy [K],energy_error [K],acceptance_rate,tau_int_energy [sweeps],drift_sigma"
+        "T [K],energy [K],energy_error [K],acceptance_rate [],tau_int_energy [sweeps],drift_sigma []"
     );
     assert_eq!(lines.count(), 5);
     std::fs::remove_dir_all(&dir).ok();

@@ -135,6 +135,18 @@ pub struct ScanSpec {
     pub summary: bool,
 }
 
+/// What `export` writes.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum ExportFormat {
+    /// CSV, units in every header, provenance as `#` comments.
+    Csv,
+    /// One JSON object: units, values, errors, provenance.
+    Json,
+}
+
+/// Options of `export`.
+pub const EXPORT_OPTIONS: &[&str] = &["format"];
+
 #[derive(Clone, Debug, PartialEq)]
 pub struct PlotSpec {
     pub target: Option<String>,
@@ -144,7 +156,9 @@ pub struct PlotSpec {
     pub x_scale: Scale,
     pub y_scale: Scale,
     pub title: Option<String>,
-    pub style: Style,
+    /// `None`: by table — measured (imported) tables as points, simulated ones as lines
+    /// next to measured data, and both otherwise.
+    pub style: Option<Style>,
     pub error_bars: bool,
     pub width_px: u32,
     pub height_px: u32,
@@ -196,6 +210,7 @@ pub enum Checked {
     Export {
         name: String,
         path: String,
+        format: ExportFormat,
     },
     /// A command statement, resolved by its family's checker.
     Command(CommandSpec),
@@ -270,6 +285,9 @@ struct View {
     variables: Vec<String>,
     /// A rhai block of the cell failed to parse: accept unknown functions and variables.
     lenient_script: bool,
+    /// Files written by earlier `export` statements of the cell (an `import` of one is
+    /// read when it runs, not when the cell is checked).
+    written_files: Vec<String>,
 }
 
 impl View {
@@ -319,6 +337,7 @@ impl View {
             functions: script.functions(),
             variables: script.variables(),
             lenient_script: false,
+            written_files: Vec::new(),
         }
     }
     fn get(&self, name: &str) -> Option<&NameView> {
@@ -730,7 +749,11 @@ impl<'a> Checker<'a> {
                 expr_text,
                 unit,
             } => self.column(target, expr, expr_text, unit.as_ref(), view),
-            StatementKind::Export { name, path } => self.export(name, path, view),
+            StatementKind::Export {
+                name,
+                path,
+                options,
+            } => self.export(name, path, options, view),
             StatementKind::Command {
                 target,
                 args,
@@ -2010,9 +2033,16 @@ impl<'a> Checker<'a> {
         let mut series = Vec::new();
         let mut y_unit: Option<(String, String)> = None;
         for y in ys {
+            // A table whose columns are known only when it is made (an import of a file an
+            // earlier statement writes): its columns and units are checked when it is drawn.
+            if let Some(table) = y.table.as_ref().filter(|t| view.is_opaque(&t.name)) {
+                series.push((table.name.clone(), y.column.name.clone()));
+                continue;
+            }
             if let Some((table, column, unit)) = self.plot_column(y, view) {
                 match &y_unit {
-                    Some((first, first_unit)) if *first_unit != unit => {
+                    // Units of one dimension (s and ms) are converted to the first series'.
+                    Some((first, first_unit)) if !data::units_agree(&unit, first_unit) => {
                         self.push(Problem::new(
                             ErrorKind::Unit,
                             y.span,
@@ -2046,10 +2076,35 @@ impl<'a> Checker<'a> {
                 }
             }
         } else {
+            // Each series is drawn against the x column of its own table; their units must
+            // agree (or convert).
             let mut tables: Vec<String> = series.iter().map(|(t, _)| t.clone()).collect();
             tables.dedup();
+            let mut x_unit: Option<(String, String)> = None;
             for table in tables {
-                self.column_of(&table, &x.column, view);
+                if view.is_opaque(&table) {
+                    continue;
+                }
+                let Some(unit) = self.column_of(&table, &x.column, view) else {
+                    continue;
+                };
+                match &x_unit {
+                    Some((first, first_unit)) if !data::units_agree(&unit, first_unit) => {
+                        self.push(Problem::new(
+                            ErrorKind::Unit,
+                            x.span,
+                            format!(
+                                "`{table}.{}` is in {} but `{first}.{}` is in {}: they cannot share an x axis",
+                                x.column.name,
+                                unit_or_pure(&unit),
+                                x.column.name,
+                                unit_or_pure(first_unit)
+                            ),
+                        ));
+                    }
+                    Some(_) => {}
+                    None => x_unit = Some((table.clone(), unit)),
+                }
             }
         }
         let options = self.options(options, PLOT_OPTIONS, "plot");
@@ -2081,8 +2136,9 @@ impl<'a> Checker<'a> {
                     "line" => Style::Line,
                     "points" => Style::Points,
                     _ => Style::Both,
-                }),
-            None => Some(Style::Both),
+                })
+                .map(Some),
+            None => Some(None),
         };
         let error_bars = match find("errors") {
             Some(o) => self
@@ -2279,21 +2335,63 @@ impl<'a> Checker<'a> {
         }))
     }
 
-    fn export(&mut self, name: &Ident, path: &(String, Span), view: &View) -> Option<Checked> {
-        if !self.table_exists(name, view) {
-            return None;
-        }
-        if !path.0.to_lowercase().ends_with(".csv") {
+    fn export(
+        &mut self,
+        name: &Ident,
+        path: &(String, Span),
+        options: &[Opt],
+        view: &mut View,
+    ) -> Option<Checked> {
+        let before = self.problems.len();
+        let exists = self.table_exists(name, view);
+        let options = self.options(options, EXPORT_OPTIONS, "export");
+        let lower = path.0.to_lowercase();
+        let by_extension = if lower.ends_with(".csv") {
+            Some(ExportFormat::Csv)
+        } else if lower.ends_with(".json") {
+            Some(ExportFormat::Json)
+        } else {
+            None
+        };
+        let format = match options.first() {
+            Some(option) => self
+                .word(&option.value, "`format`", &["csv", "json"])
+                .map(|w| {
+                    if w == "json" {
+                        ExportFormat::Json
+                    } else {
+                        ExportFormat::Csv
+                    }
+                }),
+            None => {
+                if by_extension.is_none() {
+                    self.push(
+                        Problem::new(
+                            ErrorKind::Value,
+                            path.1,
+                            "export writes CSV or JSON: name the file `NAME.csv` or `NAME.json`",
+                        )
+                        .with_help("or say which with `format = csv` / `format = json`"),
+                    );
+                }
+                by_extension
+            }
+        };
+        if path.0.trim().is_empty() {
             self.push(Problem::new(
                 ErrorKind::Value,
                 path.1,
-                "export writes CSV: name the file `NAME.csv`",
+                "the file name is empty",
             ));
+        }
+        if !exists || self.problems.len() > before {
             return None;
         }
+        view.written_files.push(path.0.clone());
         Some(Checked::Export {
             name: name.name.clone(),
             path: path.0.clone(),
+            format: format?,
         })
     }
 }

@@ -18,7 +18,8 @@ use icefield_stdlib::square_ice::{run_square_ice_scan, SquareIce};
 use icefield_stdlib::tempering::PairExchange;
 
 use crate::ast::Span;
-use crate::check::{ColumnSpec, CommandSpec, PlotSpec, Scale, ShowTarget, Style};
+use crate::check::data::{self as measured, ExportRecord};
+use crate::check::{ColumnSpec, CommandSpec, ExportFormat, PlotSpec, Scale, ShowTarget, Style};
 use crate::diagnostic::{CellError, ErrorKind, Problem};
 use crate::display::{self, header};
 use crate::measures::{
@@ -135,7 +136,9 @@ impl Runner<'_> {
                 }
             }
             Plan::Column(column) => self.column(&column, emit)?,
-            Plan::Export { name, path } => self.export(&name, &path, step.span, emit)?,
+            Plan::Export { name, path, format } => {
+                self.export(&name, &path, format, step.span, emit)?
+            }
             Plan::Command { spec, model } => {
                 self.command(&spec, &model, step.span, step.keyword, emit)?
             }
@@ -248,9 +251,15 @@ impl Runner<'_> {
         emit: &mut dyn FnMut(Output),
     ) -> Result<(), CellError> {
         let mut series = Vec::new();
-        let mut x_unit = String::new();
-        let mut y_unit = String::new();
+        let mut styles = Vec::new();
+        let mut units: Option<(String, String)> = None;
         let mut y_names: Vec<String> = Vec::new();
+        // A table without provenance was not simulated here (an imported measurement).
+        let measured = |t: Option<&Table>| t.is_some_and(|t| t.provenance.is_none());
+        let any_measured = plot
+            .series
+            .iter()
+            .any(|(t, _)| measured(self.workspace.table(t)));
         for (table_name, column_name) in &plot.series {
             let table = self.workspace.table(table_name);
             let (Some(x), Some(y)) = (
@@ -267,19 +276,58 @@ impl Runner<'_> {
                     ),
                 ));
             };
-            x_unit = x.unit.clone();
-            y_unit = y.unit.clone();
+            // Every series is drawn in the units of the first; units of one dimension convert.
+            let (x_unit, y_unit) = units
+                .get_or_insert_with(|| (x.unit.clone(), y.unit.clone()))
+                .clone();
+            let label = format!("{table_name}.{column_name}");
+            let convert = |values: &[f64], from: &str, to: &str, axis: &str| {
+                measured::convert_values(values, from, to).ok_or_else(|| {
+                    error_at(
+                        self.source,
+                        ErrorKind::Unit,
+                        span,
+                        format!(
+                            "{label} is in {} against {}, but the first series sets the {axis} axis in {}: they cannot share it",
+                            measured::unit_text(&y.unit),
+                            measured::unit_text(&x.unit),
+                            measured::unit_text(to)
+                        ),
+                    )
+                })
+            };
+            let x_values = convert(&x.values, &x.unit, &x_unit, "x")?;
+            let y_values = convert(&y.values, &y.unit, &y_unit, "y")?;
+            let y_errors = match (&y.errors, plot.error_bars) {
+                (Some(e), true) => Some(convert(e, &y.unit, &y_unit, "y")?),
+                _ => None,
+            };
+            for (from, to) in [(&x.unit, &x_unit), (&y.unit, &y_unit)] {
+                if from != to {
+                    emit(Output::Stream {
+                        text: format!("note: {label} is drawn converted from {from} to {to}\n"),
+                    });
+                }
+            }
             if !y_names.contains(column_name) {
                 y_names.push(column_name.clone());
             }
-            let label = format!("{table_name}.{column_name}");
-            let y_error = if plot.error_bars {
-                y.errors.as_deref()
-            } else {
-                None
-            };
-            let (kept, hidden) =
-                points_for_axes(&x.values, &y.values, y_error, plot.x_scale, plot.y_scale);
+            styles.push(match plot.style {
+                Some(Style::Line) => SeriesStyle::Line,
+                Some(Style::Points) => SeriesStyle::Points,
+                Some(Style::Both) => SeriesStyle::LineAndPoints,
+                // Measurements are points with error bars; a simulation beside them a line.
+                None if measured(table) => SeriesStyle::Points,
+                None if any_measured => SeriesStyle::Line,
+                None => SeriesStyle::LineAndPoints,
+            });
+            let (kept, hidden) = points_for_axes(
+                &x_values,
+                &y_values,
+                y_errors.as_deref(),
+                plot.x_scale,
+                plot.y_scale,
+            );
             if hidden > 0 {
                 // A physicist plotting a density that vanishes at low T on a log axis
                 // expects the zeros to be left out (as plotting tools conventionally
@@ -322,18 +370,15 @@ impl Runner<'_> {
                 Scale::Log => AxisScale::Log,
             },
         };
-        let style = match plot.style {
-            Style::Line => SeriesStyle::Line,
-            Style::Points => SeriesStyle::Points,
-            Style::Both => SeriesStyle::LineAndPoints,
-        };
+        let (x_unit, y_unit) = units.unwrap_or_default();
         let line_plot = LinePlot {
             title: title.clone(),
             x: axis(&plot.x_column, &x_unit, plot.x_scale),
             y: axis(&y_label, &y_unit, plot.y_scale),
             series: series
                 .iter()
-                .map(|s| Series {
+                .zip(&styles)
+                .map(|(s, &style)| Series {
                     label: s.label.clone(),
                     x: s.x.clone(),
                     y: s.y.clone(),
@@ -462,6 +507,7 @@ impl Runner<'_> {
         &mut self,
         name: &str,
         path: &str,
+        format: ExportFormat,
         span: Span,
         emit: &mut dyn FnMut(Output),
     ) -> Result<(), CellError> {
@@ -473,7 +519,11 @@ impl Runner<'_> {
                 format!("no table `{name}`"),
             ));
         };
-        let text = csv(table);
+        let record = export_record(table, &self.workspace.model, self.cell);
+        let text = match format {
+            ExportFormat::Csv => csv_with_record(table, &record),
+            ExportFormat::Json => json_export(table, &record),
+        };
         if let Err(error) = std::fs::write(path, text) {
             return Err(error_at(
                 self.source,
@@ -489,7 +539,37 @@ impl Runner<'_> {
     }
 }
 
-/// CSV with the unit in each header ("energy [K]", "energy_error [K]").
+/// What an export records about a table besides its columns.
+pub fn export_record(table: &Table, model: &Model, cell: u64) -> ExportRecord {
+    ExportRecord {
+        icefield_version: env!("CARGO_PKG_VERSION").to_string(),
+        table: table.name.clone(),
+        provenance: table.provenance.clone(),
+        derived: table
+            .columns
+            .iter()
+            .filter_map(|c| c.derived_from.clone().map(|e| (c.name.clone(), e)))
+            .collect(),
+        exported_in_cell: Some(cell),
+        dynamics_declared: model.dynamics.as_ref().map(describe_dynamics),
+    }
+}
+
+/// The dynamics rule of a model in one line (for provenance).
+pub fn describe_dynamics(dynamics: &crate::workspace::DynamicsDecl) -> String {
+    format!(
+        "{:?} acceptance, rates {}, execution {:?}, transverse field from {:?}",
+        dynamics.acceptance, dynamics.rates_description, dynamics.execution, dynamics.transverse
+    )
+}
+
+/// A float with Rust's shortest representation that reads back to the same bits.
+fn exact(value: f64) -> String {
+    format!("{value:?}")
+}
+
+/// CSV with the unit in each header ("energy [K]", "energy_error [K]", "n []"), values
+/// written to full precision.
 pub fn csv(table: &Table) -> String {
     let quote = |text: String| {
         if text.contains(',') || text.contains('"') {
@@ -498,11 +578,12 @@ pub fn csv(table: &Table) -> String {
             text
         }
     };
+    let bracketed = |name: &str, unit: &str| format!("{name} [{unit}]");
     let mut headers = Vec::new();
     for c in &table.columns {
-        headers.push(quote(header(&c.name, &c.unit)));
+        headers.push(quote(bracketed(&c.name, &c.unit)));
         if c.errors.is_some() {
-            headers.push(quote(header(&format!("{}_error", c.name), &c.unit)));
+            headers.push(quote(bracketed(&format!("{}_error", c.name), &c.unit)));
         }
     }
     let mut out = headers.join(",");
@@ -510,18 +591,101 @@ pub fn csv(table: &Table) -> String {
     for row in 0..table.row_count() {
         let mut cells = Vec::new();
         for c in &table.columns {
-            cells.push(format!(
-                "{}",
-                c.values.get(row).copied().unwrap_or(f64::NAN)
-            ));
+            cells.push(exact(c.values.get(row).copied().unwrap_or(f64::NAN)));
             if let Some(e) = &c.errors {
-                cells.push(format!("{}", e.get(row).copied().unwrap_or(f64::NAN)));
+                cells.push(exact(e.get(row).copied().unwrap_or(f64::NAN)));
             }
         }
         out.push_str(&cells.join(","));
         out.push('\n');
     }
     out
+}
+
+/// The CSV of `csv` after `#` lines of provenance for a reader, and one
+/// `# icefield-record: {...}` line that `import` reads back.
+pub fn csv_with_record(table: &Table, record: &ExportRecord) -> String {
+    let one_line = |text: &str| text.replace(['\n', '\r'], " ");
+    let mut out = format!(
+        "# icefield {} export of table `{}`{}\n",
+        record.icefield_version,
+        one_line(&table.name),
+        record
+            .exported_in_cell
+            .map(|c| format!(" (cell {c})"))
+            .unwrap_or_default()
+    );
+    match &table.provenance {
+        Some(p) => {
+            out.push_str(&format!("# source: {}\n", one_line(&p.source)));
+            out.push_str(&format!("# lattice: {}\n", one_line(&p.lattice)));
+            out.push_str(&format!("# model: {}\n", one_line(&p.model)));
+            out.push_str(&format!(
+                "# seed: {}; {} sweeps after {} to equilibrate; made in cell {}{}\n",
+                p.seed,
+                p.measurement_sweeps,
+                p.equilibration_sweeps,
+                p.cell,
+                if p.interrupted { "; INTERRUPTED" } else { "" }
+            ));
+        }
+        None => out.push_str("# source: not simulated by icefield (imported data)\n"),
+    }
+    if let Some(d) = &record.dynamics_declared {
+        out.push_str(&format!(
+            "# dynamics declared when exported: {}\n",
+            one_line(d)
+        ));
+    }
+    out.push_str(&format!(
+        "# {} {}\n",
+        measured::RECORD_COMMENT,
+        serde_json::to_string(record).unwrap_or_else(|_| "{}".to_string())
+    ));
+    out.push_str(&csv(table));
+    out
+}
+
+/// One JSON object: name, column order, units, values, errors (NaN as null), derived
+/// expressions and provenance (with the icefield version and the exporting cell).
+pub fn json_export(table: &Table, record: &ExportRecord) -> String {
+    use serde_json::{json, Map, Value as Json};
+    let mut units = Map::new();
+    let mut values = Map::new();
+    let mut errors = Map::new();
+    for c in &table.columns {
+        units.insert(c.name.clone(), json!(c.unit));
+        values.insert(c.name.clone(), json!(c.values));
+        if let Some(e) = &c.errors {
+            errors.insert(c.name.clone(), json!(e));
+        }
+    }
+    let mut provenance = match &table.provenance {
+        Some(p) => serde_json::to_value(p).unwrap_or(Json::Null),
+        None => json!({"source": "not simulated by icefield (imported data)"}),
+    };
+    if let Json::Object(map) = &mut provenance {
+        map.insert("icefield_version".into(), json!(record.icefield_version));
+        map.insert("exported_in_cell".into(), json!(record.exported_in_cell));
+        map.insert("dynamics_declared".into(), json!(record.dynamics_declared));
+    }
+    let object = json!({
+        "name": table.name,
+        "kind": "table",
+        "columns": table.columns.iter().map(|c| c.name.clone()).collect::<Vec<_>>(),
+        "units": units,
+        "values": values,
+        "errors": errors,
+        "derived": record
+            .derived
+            .iter()
+            .map(|(k, v)| (k.clone(), json!(v)))
+            .collect::<Map<String, Json>>(),
+        "provenance": provenance,
+    });
+    let mut text = serde_json::to_string_pretty(&object).unwrap_or_else(|_| "{}".to_string());
+    text.push('\n');
+    text
 }
 
 /// The outcome of a scan, whichever engine ran it.
