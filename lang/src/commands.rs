@@ -28,7 +28,7 @@ pub enum Family {
 }
 
 /// Runnable command keywords and their family.
-pub const COMMANDS: &[(&str, Family)] = &[];
+pub const COMMANDS: &[(&str, Family)] = &[("percolation", Family::Percolation)];
 
 /// The family of a runnable command keyword.
 pub fn family(keyword: &str) -> Option<Family> {

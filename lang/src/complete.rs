@@ -1,6 +1,7 @@
 //! Completion, inspection targets and the completeness test a console uses to decide
 //! whether Enter runs the cell. All positions count Unicode code points.
 
+use crate::check::percolation;
 use crate::check::{
     ACCEPTANCE_RULES, COUPLING_KINDS, DIPOLAR_OPTIONS, EXCHANGE_OPTIONS, FIELD_OPTIONS,
     LATTICE_KINDS, LATTICE_OPTIONS, NEAREST_OPTIONS, PLOT_OPTIONS, SCAN_OPTIONS, START_STATES,
@@ -95,6 +96,7 @@ fn values_for(option: &str) -> &'static [&'static str] {
         "errors" => &["on", "off"],
         "convention" => &["vector", "ising"],
         "acceptance" => ACCEPTANCE_RULES,
+        "occupy" => percolation::OCCUPATIONS,
         _ => &[],
     }
 }
@@ -228,6 +230,25 @@ pub fn complete(
                     push_all(&mut candidates, ["unit"]);
                 }
                 "column" => push_all(&mut candidates, table_names.iter().map(String::as_str)),
+                "percolation" if statement_words.len() == 1 => push_all(
+                    &mut candidates,
+                    percolation::PERCOLATION_MODES.iter().copied(),
+                ),
+                "percolation" => {
+                    let options = match statement_words.get(1).copied() {
+                        Some("bond") | Some("site") => percolation::THRESHOLD_OPTIONS,
+                        Some("clusters") => percolation::CLUSTERS_OPTIONS,
+                        Some("growth") => percolation::GROWTH_OPTIONS,
+                        Some("walkers") => percolation::WALKERS_OPTIONS,
+                        _ => percolation::OPEN_HOPS_OPTIONS,
+                    };
+                    push_all(&mut candidates, options.iter().copied());
+                    push_all(
+                        &mut candidates,
+                        percolation::PERCOLATION_LATTICES.iter().copied(),
+                    );
+                    push_all(&mut candidates, ["on", "at", "from", "to"]);
+                }
                 _ => {
                     push_all(&mut candidates, KEYWORDS.iter().copied());
                     push_all(&mut candidates, names.iter().map(String::as_str));
