@@ -1638,7 +1638,7 @@ impl ExitCount {
     }
 
     /// Sum of two counts.
-    pub fn add(self, other: ExitCount) -> ExitCount {
+    pub fn combined(self, other: ExitCount) -> ExitCount {
         ExitCount {
             monopoles: self.monopoles + other.monopoles,
             open_exits: self.open_exits + other.open_exits,

@@ -1216,8 +1216,8 @@ impl Runner<'_> {
                 let cluster = clusters(&diamond, &graph.realisation())
                     .map_err(|e| self.runtime(keyword, e.to_string()))?;
                 let charges = sampler.charge_counts();
-                thermal = thermal.add(own);
-                fresh_total = fresh_total.add(fresh);
+                thermal = thermal.combined(own);
+                fresh_total = fresh_total.combined(fresh);
                 rows.push([
                     t,
                     state as f64,
