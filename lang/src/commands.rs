@@ -44,6 +44,7 @@ pub const COMMANDS: &[(&str, Family)] = &[
     ("cluster", Family::Monopoles),
     ("import", Family::Data),
     ("calibrate", Family::Data),
+    ("percolation", Family::Percolation),
 ];
 
 /// The family of a runnable command keyword.

@@ -7,6 +7,7 @@ use crate::check::dynamics::{
     QUENCH_OPTIONS, RATE_KINDS, STEP_OPTIONS, TRANSVERSE_SOURCES,
 };
 use crate::check::monopoles;
+use crate::check::percolation;
 use crate::check::{
     ACCEPTANCE_RULES, COUPLING_KINDS, DIPOLAR_OPTIONS, EXCHANGE_OPTIONS, FIELD_OPTIONS,
     LATTICE_KINDS, LATTICE_OPTIONS, NEAREST_OPTIONS, PLOT_OPTIONS, SCAN_OPTIONS, START_STATES,
@@ -110,6 +111,7 @@ fn values_for(option: &str) -> &'static [&'static str] {
         "slow" => &["frozen"],
         "mode" => crate::check::monopoles::REACH_MODES,
         "format" => &["csv", "json", "whitespace"],
+        "occupy" => percolation::OCCUPATIONS,
         _ => &[],
     }
 }
@@ -326,6 +328,25 @@ pub fn complete(
                     };
                     push_all(&mut candidates, words.iter().copied());
                     push_all(&mut candidates, options.iter().copied());
+                }
+                "percolation" if statement_words.len() == 1 => push_all(
+                    &mut candidates,
+                    percolation::PERCOLATION_MODES.iter().copied(),
+                ),
+                "percolation" => {
+                    let options = match statement_words.get(1).copied() {
+                        Some("bond") | Some("site") => percolation::THRESHOLD_OPTIONS,
+                        Some("clusters") => percolation::CLUSTERS_OPTIONS,
+                        Some("growth") => percolation::GROWTH_OPTIONS,
+                        Some("walkers") => percolation::WALKERS_OPTIONS,
+                        _ => percolation::OPEN_HOPS_OPTIONS,
+                    };
+                    push_all(&mut candidates, options.iter().copied());
+                    push_all(
+                        &mut candidates,
+                        percolation::PERCOLATION_LATTICES.iter().copied(),
+                    );
+                    push_all(&mut candidates, ["on", "at", "from", "to"]);
                 }
                 _ => {
                     push_all(&mut candidates, KEYWORDS.iter().copied());

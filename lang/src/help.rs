@@ -47,6 +47,7 @@ pub const KEYWORD_HELP: &[(&str, &str)] = &[
     ("calibrate", "NAME = calibrate SIM.TAU to LAB.TAU against T [, tau0 = 1 µs] [, range = [a, b] K]\n  Fits the attempt time τ0 mapping simulated τ (in units of τ0, or in s with the stated tau0) onto\n  measured τ by least squares in ln τ, interpolating the simulation at the measured T (no\n  extrapolation). Stores NAME (tau0 ± error), NAME_residuals and the figure NAME_plot.\n  Example: cal = calibrate sim.tau to lab.tau against T"),
     ("unit", "column TABLE.NEW = EXPRESSION unit \"U\": the unit shown in headers and axis labels."),
     ("along", "field B = 0.5 T along [1, 1, 1]: the direction of a vector quantity."),
+    ("percolation", "[NAME =] percolation bond|site on diamond|simple_cubic|square [from P1 to P2], L = [L1, L2, ...] [, sweeps = S, points = K, bootstrap = B]\n  Newman–Ziff sweeps at several sizes: table NAME of p, the wrapping probability and largest-cluster\n  fraction per L, and NAME_pc with the crossing estimate of p_c ± bootstrap error.\n[NAME =] percolation clusters on LATTICE at p = P [, L = N, occupy = bond|site, realisations = R, sweeps = S]\n  Cluster-size distribution n_s (NAME), largest-cluster fraction and correlation length (NAME_stats).\n[NAME =] percolation growth on LATTICE at p = P [, L = N, realisations = R, seeds = K, max_distance = M, band = [A, B]]\n  Chemical-distance growth N(ℓ) from random seeds and its exponent d_ℓ (NAME_fit).\n[NAME =] percolation walkers on LATTICE at p = P [, L = N, steps = S, walkers = W, sample_every = K]\n  Random walkers on the largest cluster and on the full lattice: MSD (NAME) and PSD of x(t) (NAME_psd).\n[NAME =] percolation open_hops at T [, states = K, equilibrate = E, sample_every = S, loops = N, open_within = F]\n  The open hop directions of equilibrated states of the declared model under its dynamics rule,\n  and how far their open fraction sits from the diamond bond p_c = 0.3880.\n  Example: pc = percolation bond on diamond, L = [8, 16, 32], sweeps = 200"),
 ];
 
 /// Help for options.
@@ -107,6 +108,17 @@ pub const OPTION_HELP: &[(&str, &str)] = &[
     ("tau0", "tau0 (calibrate): the attempt time the simulation used when its τ is given in seconds, e.g. tau0 = 1 µs."),
     ("width", "width (plot): picture width in pixels (160 to 4000). Default 640."),
     ("height", "height (plot): picture height in pixels (160 to 4000). Default 400."),
+    ("p", "p (percolation): the occupation probability of bonds or sites, in [0, 1]; also written `at P`."),
+    ("occupy", "occupy = bond | site (percolation clusters, growth, walkers): what is occupied at random. Default bond."),
+    ("realisations", "realisations (percolation clusters, growth): independent random occupations averaged over."),
+    ("seeds", "seeds (percolation growth): start sites per realisation of the breadth-first growth."),
+    ("max_distance", "max_distance (percolation growth): the largest chemical distance ℓ followed. Default 40."),
+    ("band", "band = [A, B] (percolation growth): the ℓ range of the power-law fit N(ℓ) ∝ ℓ^d_ℓ (1 + c/ℓ)."),
+    ("walkers", "walkers (percolation walkers): random walkers on the cluster and as many on the full lattice. Default 200."),
+    ("points", "points (percolation bond, site): rows of the table, p evenly spaced over the window. Default 61."),
+    ("bootstrap", "bootstrap (percolation bond, site): bootstrap resamples of the sweeps for the error of p_c. Default 100."),
+    ("states", "states (percolation open_hops): equilibrated states examined per temperature. Default 10."),
+    ("open_within", "open_within (percolation open_hops): a gate class is open when its attempt time is at most this factor above the fastest. Default 10."),
 ];
 
 /// Help for option values and kinds.
@@ -150,6 +162,14 @@ pub const WORD_HELP: &[(&str, &str)] = &[
     ("model", "show model: the declared lattice, couplings, seed and measures."),
     ("workspace", "show workspace: every named table and figure."),
     ("measures", "show measures: the measures the next scan records."),
+    ("diamond", "diamond (percolation): the diamond lattice, 8 L³ sites, coordination 4 — the lattice of tetrahedron centres where monopoles hop. Bond p_c = 0.3880, site p_c = 0.4301 (van der Marck 1997, memory)."),
+    ("simple_cubic", "simple_cubic (percolation): L³ sites, coordination 6. Bond p_c = 0.248812 (Lorenz & Ziff 1998), site p_c = 0.311608 (Deng & Blöte 2005)."),
+    ("square", "square (percolation): L² sites, coordination 4. Bond p_c = 1/2 (Kesten 1980, exact), site p_c = 0.592746 (Newman & Ziff 2000)."),
+    ("bond", "bond (percolation): bonds occupied at random; every site present."),
+    ("site", "site (percolation): sites occupied at random; a bond is usable between two occupied sites."),
+    ("clusters", "percolation clusters: the cluster-size distribution, largest-cluster fraction and correlation length at one p."),
+    ("growth", "percolation growth: the chemical-distance growth N(ℓ) ∝ ℓ^d_ℓ from random seeds."),
+    ("open_hops", "percolation open_hops: which hops a monopole could make in equilibrated states under the dynamics rule (open gate classes), against the diamond bond p_c."),
 ];
 
 fn lookup(table: &[(&str, &'static str)], word: &str) -> Option<String> {

@@ -29,6 +29,7 @@
 //!   (35)); kept in O(1) per union from per-root sums of unwrapped positions.
 
 use crate::control::Interrupt;
+use crate::gating::{gate_class, GateClasses, GATE_CLASS_COUNT};
 use crate::lattice::Pyrochlore;
 use crate::rng::SpinRng;
 use rand::Rng;
@@ -846,6 +847,38 @@ fn convolve(first: usize, weights: &[f64], values: &[f64]) -> f64 {
 }
 
 impl NewmanZiffRun {
+    /// Adds the sweeps of `other` (same graph and kind), so a long run can be
+    /// done in chunks with progress reported in between.
+    pub fn absorb(&mut self, other: NewmanZiffRun) -> Result<(), PercolationError> {
+        other.check_consistent()?;
+        if other.graph != self.graph || other.kind != self.kind || other.units != self.units {
+            return invalid(format!(
+                "cannot add sweeps of {} to a run of {}",
+                other.graph, self.graph
+            ));
+        }
+        let add = |a: &mut Vec<f64>, b: &[f64]| a.iter_mut().zip(b).for_each(|(x, y)| *x += y);
+        add(&mut self.largest_fraction_sum, &other.largest_fraction_sum);
+        add(
+            &mut self.largest_fraction_squared_sum,
+            &other.largest_fraction_squared_sum,
+        );
+        add(
+            &mut self.mean_cluster_size_sum,
+            &other.mean_cluster_size_sum,
+        );
+        add(
+            &mut self.correlation_length_squared_sum,
+            &other.correlation_length_squared_sum,
+        );
+        self.first_wrap_x.extend(other.first_wrap_x);
+        self.first_wrap_any.extend(other.first_wrap_any);
+        self.first_span_x.extend(other.first_span_x);
+        self.sweeps += other.sweeps;
+        self.interrupted |= other.interrupted;
+        Ok(())
+    }
+
     /// Refuse a run whose arrays do not fit together (e.g. edited JSON).
     fn check_consistent(&self) -> Result<(), PercolationError> {
         let m = self.units + 1;
@@ -924,6 +957,8 @@ pub struct CrossingEstimate {
     pub pair_crossings: Vec<PairCrossing>,
     /// Bootstrap resamples used.
     pub bootstrap_samples: usize,
+    /// The bootstrap stopped early on interrupt (the error uses the resamples done).
+    pub interrupted: bool,
 }
 
 /// p where `R_small(p) = R_large(p)` in `[lo, hi]`, from the first sign
@@ -985,7 +1020,9 @@ fn pair_crossing(
 
 /// Crossing estimate of p_c from runs at several sizes (sorted by L
 /// here), searched in `[p_lo, p_hi]`; error from `bootstrap_samples`
-/// resamplings of the sweeps of every size.
+/// resamplings of the sweeps of every size. `interrupt` is polled between
+/// resamples: the estimate itself is always computed, and an interrupted
+/// bootstrap keeps the resamples done so far (marked `interrupted`).
 pub fn crossing_estimate(
     runs: &[NewmanZiffRun],
     observable: CrossingObservable,
@@ -993,6 +1030,7 @@ pub fn crossing_estimate(
     p_hi: f64,
     bootstrap_samples: usize,
     rng: &mut SpinRng,
+    interrupt: &Interrupt,
 ) -> Result<CrossingEstimate, PercolationError> {
     if runs.len() < 2 {
         return invalid("a crossing needs runs at two or more sizes".into());
@@ -1043,7 +1081,12 @@ pub fn crossing_estimate(
     })?;
     let mut samples = Vec::with_capacity(bootstrap_samples);
     let mut resampled: Vec<Vec<u32>> = originals.clone();
+    let mut interrupted = false;
     for _ in 0..bootstrap_samples {
+        if interrupt.is_requested() {
+            interrupted = true;
+            break;
+        }
         for (target, source) in resampled.iter_mut().zip(&originals) {
             for t in target.iter_mut() {
                 *t = source[rng.gen_range(0..source.len())];
@@ -1064,6 +1107,7 @@ pub fn crossing_estimate(
         error,
         pair_crossings,
         bootstrap_samples: samples.len(),
+        interrupted,
     })
 }
 
@@ -1291,6 +1335,29 @@ pub struct ChemicalGrowth {
     pub seeds: usize,
 }
 
+impl ChemicalGrowth {
+    /// Adds the seeds of `other` (same `max_distance`): the conditioned means
+    /// are recombined with their surviving-seed weights.
+    pub fn absorb(&mut self, other: &ChemicalGrowth) -> Result<(), PercolationError> {
+        if other.distance.len() != self.distance.len() {
+            return invalid("cannot combine growths of different maximal distance".into());
+        }
+        for l in 0..self.distance.len() {
+            let (a, b) = (self.surviving_seeds[l], other.surviving_seeds[l]);
+            let total = |mean: f64, n: u64| if n > 0 { mean * n as f64 } else { 0.0 };
+            let sum = total(self.mean_sites[l], a) + total(other.mean_sites[l], b);
+            self.surviving_seeds[l] = a + b;
+            self.mean_sites[l] = if a + b > 0 {
+                sum / (a + b) as f64
+            } else {
+                f64::NAN
+            };
+        }
+        self.seeds += other.seeds;
+        Ok(())
+    }
+}
+
 /// ⟨N(ℓ)⟩ from `seeds_per_realisation` random seeds (uniform over present
 /// sites) in each of `realisations` random occupations at probability `p`.
 /// At each ℓ the average runs over the seeds whose cluster reaches ℓ, the
@@ -1362,10 +1429,22 @@ pub struct RandomWalks {
     /// Per walker, the unwrapped x coordinate at each sample time (a
     /// uniform series, ready for [`crate::spectra::welch_psd`]).
     pub x_series: Vec<Vec<f64>>,
+    /// Walkers finished (the averages run over these).
+    pub walkers: usize,
+    /// Stopped early on interrupt: the walkers finished so far are kept.
+    pub interrupted: bool,
 }
 
+/// Steps between polls of the interrupt inside one walk (a poll is an
+/// atomic load; 2^16 steps take well under a millisecond).
+const WALK_POLL_STEPS: u64 = 1 << 16;
+
 /// `walkers` blind-ant walks of `steps` steps from `starts` (cycled),
-/// sampled every `sample_every` steps.
+/// sampled every `sample_every` steps. `interrupt` is polled between walkers
+/// and every [`WALK_POLL_STEPS`] steps; an interrupted run keeps the walkers
+/// that finished (a walker cut short is dropped, so every kept series has
+/// the full length), or returns [`PercolationError::Interrupted`] if none did.
+#[allow(clippy::too_many_arguments)]
 pub fn random_walks(
     graph: &PercolationGraph,
     realisation: &Realisation,
@@ -1374,6 +1453,7 @@ pub fn random_walks(
     steps: u64,
     sample_every: u64,
     rng: &mut SpinRng,
+    interrupt: &Interrupt,
 ) -> Result<RandomWalks, PercolationError> {
     realisation.check_fits(graph)?;
     if starts.is_empty() || walkers == 0 || sample_every == 0 {
@@ -1392,12 +1472,22 @@ pub fn random_walks(
     let samples = (steps / sample_every) as usize + 1;
     let mut msd = vec![0.0; samples];
     let mut x_series = Vec::with_capacity(walkers);
-    for w in 0..walkers {
+    let mut interrupted = false;
+    let mut r2_of_walker = vec![0.0; samples];
+    'walkers: for w in 0..walkers {
+        if interrupt.is_requested() {
+            interrupted = true;
+            break;
+        }
         let mut site = starts[w % starts.len()];
         let mut position = [0i64; 3];
         let mut xs = Vec::with_capacity(samples);
         xs.push(0.0);
         for t in 1..=steps {
+            if t % WALK_POLL_STEPS == 0 && interrupt.is_requested() {
+                interrupted = true;
+                break 'walkers;
+            }
             let incident = graph.incident(site);
             if !incident.is_empty() {
                 let [other, edge] = incident[rng.gen_range(0..incident.len())];
@@ -1411,19 +1501,293 @@ pub fn random_walks(
             }
             if t % sample_every == 0 {
                 let k = (t / sample_every) as usize;
-                let r2 = position.iter().map(|v| (v * v) as f64).sum::<f64>();
-                msd[k] += r2;
+                r2_of_walker[k] = position.iter().map(|v| (v * v) as f64).sum::<f64>();
                 xs.push(position[0] as f64);
             }
         }
+        for (m, r2) in msd.iter_mut().zip(&r2_of_walker) {
+            *m += r2;
+        }
         x_series.push(xs);
     }
-    msd.iter_mut().for_each(|m| *m /= walkers as f64);
+    let done = x_series.len();
+    if done == 0 {
+        return Err(PercolationError::Interrupted);
+    }
+    msd.iter_mut().for_each(|m| *m /= done as f64);
     Ok(RandomWalks {
         times_steps: (0..samples as u64).map(|k| k * sample_every).collect(),
         mean_square_displacement: msd,
         x_series,
+        walkers: done,
+        interrupted,
     })
+}
+
+/// Bond thresholds p_c of the built-in lattices: square 1/2 (Kesten,
+/// Commun. Math. Phys. 74, 41 (1980), exact), simple cubic 0.248812 (Lorenz
+/// & Ziff, PRE 57, 230 (1998)), diamond 0.3880 (van der Marck, PRE 55, 1514
+/// (1997), memory).
+pub fn bond_threshold(kind: LatticeKind) -> f64 {
+    match kind {
+        LatticeKind::Square => 0.5,
+        LatticeKind::SimpleCubic => 0.248_812,
+        LatticeKind::Diamond => DIAMOND_BOND_THRESHOLD,
+    }
+}
+
+/// Site thresholds p_c: square 0.592746 (Newman & Ziff, PRL 85, 4104
+/// (2000)), simple cubic 0.311608 (Deng & Blöte, PRE 72, 016126 (2005)),
+/// diamond 0.4301 (van der Marck 1997, memory).
+pub fn site_threshold(kind: LatticeKind) -> f64 {
+    match kind {
+        LatticeKind::Square => 0.592_746,
+        LatticeKind::SimpleCubic => 0.311_608,
+        LatticeKind::Diamond => 0.4301,
+    }
+}
+
+/// The published threshold of `kind` percolation on `lattice`.
+pub fn threshold(lattice: LatticeKind, kind: PercolationKind) -> f64 {
+    match kind {
+        PercolationKind::Bond => bond_threshold(lattice),
+        PercolationKind::Site => site_threshold(lattice),
+    }
+}
+
+/// Diamond bond threshold 0.3880 (van der Marck, PRE 55, 1514 (1997),
+/// memory): the reference against which the open-hop fraction of a
+/// spin-ice state is compared (the monopoles hop on the diamond lattice).
+pub const DIAMOND_BOND_THRESHOLD: f64 = 0.3880;
+
+/// Whether spin `spin` carries a monopole of sign `charge_sign` onward
+/// from tetrahedron `from_tet`, i.e. whether flipping it moves that charge
+/// out of `from_tet` into the other tetrahedron of the spin.
+///
+/// Convention (derived from physics-reference §1): spin `i` points along
+/// `σ_i e_a`, and `e_a` points out of up tetrahedra, so the spin points out
+/// of its up tetrahedron when `σ = +1` and out of its down tetrahedron when
+/// `σ = −1`. Flipping it lowers `Q` of the tetrahedron it points out of by
+/// one and raises the other by one: **a positive charge hops along the
+/// spin's arrow (out of the tetrahedron the spin points out of), a negative
+/// charge against it.** `from_tet` must be one of the spin's tetrahedra.
+pub fn carries_onward(
+    lat: &Pyrochlore,
+    sigma: &[i8],
+    spin: usize,
+    from_tet: usize,
+    charge_sign: i8,
+) -> bool {
+    let points_out = (sigma[spin] > 0) == lat.is_up(from_tet);
+    if charge_sign > 0 {
+        points_out
+    } else {
+        !points_out
+    }
+}
+
+/// The open hop directions of one spin-ice state under a dynamics rule.
+///
+/// The graph is [`PercolationGraph::pyrochlore_diamond`]: sites are the
+/// tetrahedra (where monopoles live), bond `i` is spin `i`. A bond is
+/// **open** when its spin's gate class (transverse field of its six
+/// neighbours in this state, [`crate::gating`]) is one of the open (fast)
+/// classes of the rule ([`crate::monopoles::open_classes`]). That is the
+/// undirected static-snapshot graph; its open fraction is what is compared
+/// with the diamond bond threshold. The directed graph adds the charge
+/// direction ([`carries_onward`]): a monopole of sign `q` on `t` can hop
+/// through spin `i` only if `i` is open *and* carries `q` onward from `t`.
+///
+/// Note (derived, physics-reference §5): no spin in an ice background has
+/// `h⊥ = 0`, so the undirected fraction of a pure ice state is 1 under the
+/// bimodal rule; what a monopole sees is measured by [`Self::monopole_exits`]
+/// (monopoles of the state) and [`fresh_pair_exits`] (every pair one flip
+/// can create).
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct OpenHopGraph {
+    /// Per spin (= per diamond bond): the gate class is open.
+    pub open: Vec<bool>,
+    /// Spins in each gate class.
+    pub class_histogram: [u64; GATE_CLASS_COUNT],
+    /// Which classes the rule treats as open.
+    pub open_classes: [bool; GATE_CLASS_COUNT],
+}
+
+/// Hop directions seen by monopoles: over `monopoles` singly charged
+/// tetrahedra, `open_exits` of their `4 × monopoles` bonds are open and
+/// carry the charge onward.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq, Serialize, Deserialize)]
+pub struct ExitCount {
+    /// Singly charged tetrahedra examined.
+    pub monopoles: u64,
+    /// Open bonds that carry the charge onward, summed over them.
+    pub open_exits: u64,
+}
+
+impl ExitCount {
+    /// Open exits per bond of a monopole's tetrahedron (NaN without
+    /// monopoles): the effective bond occupation a moving monopole sees, to
+    /// compare with the diamond bond threshold. At most 3/4 (a single charge
+    /// has three spins that carry it onward, derived).
+    pub fn fraction(&self) -> f64 {
+        if self.monopoles == 0 {
+            f64::NAN
+        } else {
+            self.open_exits as f64 / (4 * self.monopoles) as f64
+        }
+    }
+
+    /// Sum of two counts.
+    pub fn combined(self, other: ExitCount) -> ExitCount {
+        ExitCount {
+            monopoles: self.monopoles + other.monopoles,
+            open_exits: self.open_exits + other.open_exits,
+        }
+    }
+}
+
+fn check_state(lat: &Pyrochlore, sigma: &[i8]) -> Result<(), PercolationError> {
+    if sigma.len() != lat.spin_count() || sigma.iter().any(|&s| s != 1 && s != -1) {
+        return invalid(format!(
+            "a spin-ice state of this lattice has {} entries of ±1 (got {} entries)",
+            lat.spin_count(),
+            sigma.len()
+        ));
+    }
+    Ok(())
+}
+
+/// Open exits of a monopole of sign `q` on `tet` in `sigma` with per-spin
+/// open flags `open`.
+fn exits_of(lat: &Pyrochlore, sigma: &[i8], open: &[bool], tet: usize, q: i8) -> u64 {
+    lat.spins_of(tet)
+        .iter()
+        .filter(|&&s| open[s as usize] && carries_onward(lat, sigma, s as usize, tet, q))
+        .count() as u64
+}
+
+impl OpenHopGraph {
+    /// The open bonds of state `sigma` (one ±1 per spin of `lat`) when the
+    /// classes marked in `open_classes` are open.
+    pub fn from_state(
+        lat: &Pyrochlore,
+        sigma: &[i8],
+        open_classes: [bool; GATE_CLASS_COUNT],
+    ) -> Result<Self, PercolationError> {
+        check_state(lat, sigma)?;
+        let classes = GateClasses::new(lat, sigma);
+        Ok(Self {
+            open: classes
+                .as_slice()
+                .iter()
+                .map(|&c| open_classes[c as usize])
+                .collect(),
+            class_histogram: classes.histogram(),
+            open_classes,
+        })
+    }
+
+    /// Fraction of bonds (spins) that are open, directions ignored.
+    pub fn open_bond_fraction(&self) -> f64 {
+        self.open.iter().filter(|o| **o).count() as f64 / self.open.len().max(1) as f64
+    }
+
+    /// `open_bond_fraction − p_c(diamond bond)`: positive above threshold.
+    pub fn distance_from_threshold(&self) -> f64 {
+        self.open_bond_fraction() - DIAMOND_BOND_THRESHOLD
+    }
+
+    /// The undirected open bonds as a realisation of
+    /// [`PercolationGraph::pyrochlore_diamond`] (bond index = spin index),
+    /// for [`clusters`], [`chemical_growth`]-style searches and walkers.
+    pub fn realisation(&self) -> Realisation {
+        Realisation {
+            kind: PercolationKind::Bond,
+            open: self.open.clone(),
+        }
+    }
+
+    /// Whether a monopole of sign `charge_sign` on `from_tet` can hop
+    /// through `spin` (open and carrying the charge onward).
+    pub fn hop_open(
+        &self,
+        lat: &Pyrochlore,
+        sigma: &[i8],
+        spin: usize,
+        from_tet: usize,
+        charge_sign: i8,
+    ) -> bool {
+        self.open[spin] && carries_onward(lat, sigma, spin, from_tet, charge_sign)
+    }
+
+    /// The directed graph for charges of sign `charge_sign`: one arc
+    /// `(from, to)` of tetrahedra per open spin, along the spin's arrow for
+    /// positive charges and against it for negative ones.
+    pub fn directed_arcs(&self, lat: &Pyrochlore, sigma: &[i8], charge_sign: i8) -> Vec<[u32; 2]> {
+        (0..self.open.len())
+            .filter(|&s| self.open[s])
+            .map(|s| {
+                let [up, down] = lat.tetrahedra_of(s);
+                if carries_onward(lat, sigma, s, up as usize, charge_sign) {
+                    [up, down]
+                } else {
+                    [down, up]
+                }
+            })
+            .collect()
+    }
+
+    /// Exits seen by the single charges (|Q| = 1) of the state itself.
+    pub fn monopole_exits(&self, lat: &Pyrochlore, sigma: &[i8]) -> ExitCount {
+        let mut count = ExitCount::default();
+        for t in 0..lat.tetrahedron_count() {
+            let q = crate::hamiltonian::charge(lat, sigma, t);
+            if q.abs() == 1 {
+                count.monopoles += 1;
+                count.open_exits += exits_of(lat, sigma, &self.open, t, q);
+            }
+        }
+        count
+    }
+}
+
+/// Exits seen by freshly created monopoles: for every neutral tetrahedron
+/// `t` of `sigma` and each of its four spins `r`, flip `r` (which puts a
+/// charge on `t` and the opposite one on the tetrahedron across `r`), count
+/// the open exits of the charge on `t` in that state (gates recomputed
+/// after the flip), and flip back. Gives a monopole's view of a state with
+/// no monopoles (an ice state), probing every tetrahedron.
+pub fn fresh_pair_exits(
+    lat: &Pyrochlore,
+    sigma: &[i8],
+    open_classes: [bool; GATE_CLASS_COUNT],
+) -> Result<ExitCount, PercolationError> {
+    check_state(lat, sigma)?;
+    let mut scratch = sigma.to_vec();
+    let mut count = ExitCount::default();
+    for t in 0..lat.tetrahedron_count() {
+        if crate::hamiltonian::charge(lat, sigma, t) != 0 {
+            continue;
+        }
+        for &r in lat.spins_of(t) {
+            let r = r as usize;
+            scratch[r] = -scratch[r];
+            let q = crate::hamiltonian::charge(lat, &scratch, t);
+            let exits = lat
+                .spins_of(t)
+                .iter()
+                .filter(|&&s| {
+                    let s = s as usize;
+                    carries_onward(lat, &scratch, s, t, q)
+                        && open_classes[gate_class(lat, &scratch, s) as usize]
+                })
+                .count() as u64;
+            count.monopoles += 1;
+            count.open_exits += exits;
+            scratch[r] = -scratch[r];
+        }
+    }
+    Ok(count)
 }
 
 #[cfg(test)]
@@ -1519,6 +1883,7 @@ mod tests {
             0.65,
             40,
             &mut rng,
+            &Interrupt::new(),
         )
         .unwrap();
         eprintln!("{c:?}");
@@ -1541,6 +1906,7 @@ mod tests {
             0.35,
             40,
             &mut rng,
+            &Interrupt::new(),
         )
         .unwrap();
         eprintln!("{c:?}");
@@ -1555,8 +1921,16 @@ mod tests {
             .map(|&l| run(LatticeKind::Diamond, l, 600, 13))
             .collect();
         let mut rng = RngStreams::new(7).stream(99);
-        let c = crossing_estimate(&runs, CrossingObservable::WrappingX, 0.3, 0.5, 40, &mut rng)
-            .unwrap();
+        let c = crossing_estimate(
+            &runs,
+            CrossingObservable::WrappingX,
+            0.3,
+            0.5,
+            40,
+            &mut rng,
+            &Interrupt::new(),
+        )
+        .unwrap();
         eprintln!("{c:?}");
         assert!((c.p_c - 0.3880).abs() < 0.005, "{c:?}");
     }
@@ -1615,7 +1989,17 @@ mod tests {
         let g = PercolationGraph::lattice(LatticeKind::Diamond, 8).unwrap();
         let mut rng = RngStreams::new(23).stream(0);
         let full = Realisation::bonds(&g, vec![true; g.edge_count()]).unwrap();
-        let walks = random_walks(&g, &full, &[0, 17, 300], 300, 400, 40, &mut rng).unwrap();
+        let walks = random_walks(
+            &g,
+            &full,
+            &[0, 17, 300],
+            300,
+            400,
+            40,
+            &mut rng,
+            &Interrupt::new(),
+        )
+        .unwrap();
         let last = *walks.mean_square_displacement.last().unwrap();
         // s.d. of the mean of r² over 300 walkers ≈ 3t·√(2/3)/√300 (Gaussian limit).
         assert!(
@@ -1630,7 +2014,17 @@ mod tests {
             .filter(|&s| stats.label[s] == stats.largest_label)
             .take(50)
             .collect();
-        let slow = random_walks(&g, &at_pc, &starts, 300, 400, 40, &mut rng).unwrap();
+        let slow = random_walks(
+            &g,
+            &at_pc,
+            &starts,
+            300,
+            400,
+            40,
+            &mut rng,
+            &Interrupt::new(),
+        )
+        .unwrap();
         assert!(*slow.mean_square_displacement.last().unwrap() < 0.5 * last);
     }
 
@@ -1648,7 +2042,7 @@ mod tests {
             open: vec![true; 5],
         };
         assert!(clusters(&g, &wrong).is_err());
-        assert!(random_walks(&g, &wrong, &[0], 1, 10, 1, &mut rng).is_err());
+        assert!(random_walks(&g, &wrong, &[0], 1, 10, 1, &mut rng, &Interrupt::new()).is_err());
     }
 
     #[test]
@@ -1663,5 +2057,177 @@ mod tests {
             .sum();
         assert!((sum - 1.0).abs() < 1e-12);
         assert!((mean - 3000.0).abs() < 1e-6);
+    }
+
+    fn site_crossing(kind: LatticeKind, sizes: &[usize], sweeps: usize, lo: f64, hi: f64) -> f64 {
+        let runs: Vec<_> = sizes
+            .iter()
+            .map(|&l| {
+                let g = PercolationGraph::lattice(kind, l).unwrap();
+                let mut rng = RngStreams::new(31).stream(l as u64);
+                newman_ziff(
+                    &g,
+                    PercolationKind::Site,
+                    sweeps,
+                    &mut rng,
+                    &Interrupt::new(),
+                )
+                .unwrap()
+            })
+            .collect();
+        let mut rng = RngStreams::new(32).stream(99);
+        let c = crossing_estimate(
+            &runs,
+            CrossingObservable::WrappingX,
+            lo,
+            hi,
+            20,
+            &mut rng,
+            &Interrupt::new(),
+        )
+        .unwrap();
+        eprintln!("{kind:?} site: {c:?}");
+        c.p_c
+    }
+
+    #[test]
+    fn square_site_threshold() {
+        // Newman & Ziff, PRL 85, 4104 (2000): p_c = 0.592746.
+        let p = site_crossing(LatticeKind::Square, &[16, 32, 64], 400, 0.45, 0.75);
+        assert!((p - 0.592746).abs() < 0.01, "{p}");
+        assert!((site_threshold(LatticeKind::Square) - 0.592746).abs() < 1e-12);
+    }
+
+    #[test]
+    fn simple_cubic_and_diamond_site_thresholds() {
+        // Deng & Blöte, PRE 72, 016126 (2005): 0.311608 (simple cubic);
+        // van der Marck, PRE 55, 1514 (1997) (memory): 0.4301 (diamond).
+        let sc = site_crossing(LatticeKind::SimpleCubic, &[8, 12, 16], 400, 0.2, 0.45);
+        assert!((sc - 0.311608).abs() < 0.006, "{sc}");
+        let diamond = site_crossing(LatticeKind::Diamond, &[6, 8, 10], 400, 0.32, 0.55);
+        assert!((diamond - 0.4301).abs() < 0.006, "{diamond}");
+    }
+
+    #[test]
+    fn interrupted_walks_and_bootstraps_keep_what_they_have() {
+        let g = PercolationGraph::lattice(LatticeKind::Diamond, 3).unwrap();
+        let full = Realisation::bonds(&g, vec![true; g.edge_count()]).unwrap();
+        let mut rng = RngStreams::new(2).stream(0);
+        let stop = Interrupt::new();
+        stop.request();
+        assert_eq!(
+            random_walks(&g, &full, &[0], 5, 100, 10, &mut rng, &stop),
+            Err(PercolationError::Interrupted)
+        );
+        let runs = [
+            run(LatticeKind::Square, 8, 50, 1),
+            run(LatticeKind::Square, 16, 50, 2),
+        ];
+        let c = crossing_estimate(
+            &runs,
+            CrossingObservable::WrappingX,
+            0.3,
+            0.7,
+            30,
+            &mut rng,
+            &stop,
+        )
+        .unwrap();
+        assert!(c.interrupted);
+        assert_eq!(c.bootstrap_samples, 0);
+        assert!(c.p_c > 0.3 && c.p_c < 0.7);
+        let walks = random_walks(&g, &full, &[0], 4, 100, 10, &mut rng, &Interrupt::new()).unwrap();
+        assert_eq!((walks.walkers, walks.interrupted), (4, false));
+    }
+
+    mod open_hops {
+        use super::super::*;
+        use crate::gating::{AttemptTimes, SlowGate, CLOSED_GATE_CLASS};
+        use crate::metropolis::{initial_configuration, Start};
+        use crate::monopoles::open_classes;
+        use crate::rng::RngStreams;
+
+        fn random_state(lat: &Pyrochlore, seed: u64) -> Vec<i8> {
+            initial_configuration(lat, Start::Random, &mut RngStreams::new(seed).stream(0))
+        }
+
+        #[test]
+        fn an_all_open_rule_opens_every_bond() {
+            // Uniform rates: every class within a factor 1 of the fastest, so every
+            // bond is open (exact); a single charge has exactly three spins that carry
+            // it onward (derived: Q = ±1 is three out / one in, or the reverse).
+            let lat = Pyrochlore::new(2).unwrap();
+            let sigma = random_state(&lat, 5);
+            let open = open_classes(&AttemptTimes::uniform(1e-6).unwrap(), 1.0);
+            assert_eq!(open, [true; GATE_CLASS_COUNT]);
+            let g = OpenHopGraph::from_state(&lat, &sigma, open).unwrap();
+            assert_eq!(g.open_bond_fraction(), 1.0);
+            assert!((g.distance_from_threshold() - (1.0 - 0.3880)).abs() < 1e-12);
+            let exits = g.monopole_exits(&lat, &sigma);
+            assert!(exits.monopoles > 0);
+            assert_eq!(exits.open_exits, 3 * exits.monopoles);
+            assert_eq!(exits.fraction(), 0.75);
+            let fresh = fresh_pair_exits(&lat, &sigma, open).unwrap();
+            assert_eq!(fresh.open_exits, 3 * fresh.monopoles);
+            let graph = PercolationGraph::pyrochlore_diamond(&lat).unwrap();
+            let c = clusters(&graph, &g.realisation()).unwrap();
+            assert_eq!(c.largest_cluster_fraction, 1.0);
+        }
+
+        #[test]
+        fn bimodal_frozen_rule_opens_the_spins_not_in_class_zero() {
+            // Exact by definition: open ⇔ class ≠ 0; counted independently with
+            // `gate_class` spin by spin.
+            let lat = Pyrochlore::new(3).unwrap();
+            let sigma = random_state(&lat, 9);
+            let times = AttemptTimes::bimodal(1e-6, SlowGate::Frozen).unwrap();
+            let open = open_classes(&times, 10.0);
+            assert_eq!(open, [false, true, true, true]);
+            let g = OpenHopGraph::from_state(&lat, &sigma, open).unwrap();
+            let not_closed = (0..lat.spin_count())
+                .filter(|&i| gate_class(&lat, &sigma, i) != CLOSED_GATE_CLASS)
+                .count();
+            assert_eq!(
+                g.open_bond_fraction(),
+                not_closed as f64 / lat.spin_count() as f64
+            );
+            assert!(g.open_bond_fraction() < 1.0);
+            assert_eq!(
+                g.class_histogram.iter().sum::<u64>() as usize,
+                lat.spin_count()
+            );
+            // In an ice state no spin has h⊥ = 0 (derived, physics-reference §5).
+            let ice =
+                initial_configuration(&lat, Start::IceState, &mut RngStreams::new(1).stream(0));
+            let ice_graph = OpenHopGraph::from_state(&lat, &ice, open).unwrap();
+            assert_eq!(ice_graph.open_bond_fraction(), 1.0);
+            assert!(OpenHopGraph::from_state(&lat, &ice[1..], open).is_err());
+        }
+
+        #[test]
+        fn a_positive_charge_hops_along_the_spin_arrow() {
+            // Q = (n_out − n_in)/2 (physics-reference §1): flipping a spin that
+            // carries +1 onward from t lowers Q_t by one and raises the other
+            // tetrahedron's Q by one (derived, checked here against `charge`).
+            let lat = Pyrochlore::new(2).unwrap();
+            let mut sigma = random_state(&lat, 3);
+            let open = [true; GATE_CLASS_COUNT];
+            let g = OpenHopGraph::from_state(&lat, &sigma, open).unwrap();
+            let arcs = g.directed_arcs(&lat, &sigma, 1);
+            assert_eq!(arcs.len(), lat.spin_count());
+            for spin in 0..lat.spin_count() {
+                let [from, to] = arcs[spin];
+                assert!(g.hop_open(&lat, &sigma, spin, from as usize, 1));
+                assert!(g.hop_open(&lat, &sigma, spin, to as usize, -1));
+                assert!(!g.hop_open(&lat, &sigma, spin, to as usize, 1));
+                let before =
+                    [from, to].map(|t| crate::hamiltonian::charge(&lat, &sigma, t as usize));
+                sigma[spin] = -sigma[spin];
+                let after =
+                    [from, to].map(|t| crate::hamiltonian::charge(&lat, &sigma, t as usize));
+                sigma[spin] = -sigma[spin];
+                assert_eq!([after[0] - before[0], after[1] - before[1]], [-1, 1]);
+            }
+        }
     }
 }

@@ -55,6 +55,16 @@ fn error_at(source: &str, kind: ErrorKind, span: Span, message: impl Into<String
 }
 
 impl Runner<'_> {
+    /// A runtime error at `span` of this cell.
+    fn runtime(&self, span: Span, message: impl Into<String>) -> CellError {
+        error_at(self.source, ErrorKind::Runtime, span, message)
+    }
+
+    /// The error that ends a cell after an interrupt (what was kept is already stored).
+    fn interrupted(&self, keyword: Span, message: String) -> CellError {
+        error_at(self.source, ErrorKind::Interrupted, keyword, message)
+    }
+
     /// Runs a command by its family (see `commands`).
     fn command(
         &mut self,

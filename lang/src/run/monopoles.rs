@@ -380,10 +380,6 @@ impl Runner<'_> {
         })
     }
 
-    fn runtime(&self, keyword: Span, message: impl Into<String>) -> CellError {
-        error_at(self.source, ErrorKind::Runtime, keyword, message)
-    }
-
     /// The equilibration engine for `preparation` at `temperature_kelvin`.
     #[allow(clippy::too_many_arguments)]
     fn equilibrator<'l>(
@@ -476,10 +472,6 @@ impl Runner<'_> {
             throttle.report(emit, label, k + 1, sweeps);
         }
         true
-    }
-
-    fn interrupted(&self, keyword: Span, message: String) -> CellError {
-        error_at(self.source, ErrorKind::Interrupted, keyword, message)
     }
 
     fn track(
