@@ -140,6 +140,16 @@ fn main() -> ExitCode {
         }
         Command::Run { file, json, out } => {
             let interrupt = interrupt_on_ctrl_c(true);
+            // Relative paths in a script (`import`, `export`) mean the script's folder, as
+            // they mean the notebook's folder in a kernel Jupyter starts there.
+            let file = std::path::absolute(&file).unwrap_or(file);
+            let out = out.map(|dir| std::path::absolute(&dir).unwrap_or(dir));
+            if let Some(folder) = file.parent().filter(|p| p.is_dir()) {
+                if let Err(e) = std::env::set_current_dir(folder) {
+                    eprintln!("icefield: cannot work in {}: {e}", folder.display());
+                    return ExitCode::from(run::EXIT_ERROR as u8);
+                }
+            }
             let options = run::RunOptions {
                 script: file,
                 json,
