@@ -781,40 +781,7 @@ impl Checker<'_> {
             Some(o) => self.axis(&o.value).map(Some),
             None => Some(None),
         };
-        if !view.lattice {
-            self.push(
-                Problem::new(
-                    ErrorKind::Name,
-                    statement.keyword.span,
-                    format!("no lattice declared yet: `{keyword}` needs a model"),
-                )
-                .with_help("declare one first, e.g. `lattice pyrochlore L = 4`"),
-            );
-        } else if !view.couplings {
-            self.push(
-                Problem::new(
-                    ErrorKind::Name,
-                    statement.keyword.span,
-                    format!("no couplings declared yet: `{keyword}` needs a model"),
-                )
-                .with_help("declare them first, e.g. `couplings nearest J_eff = 1.8 K`"),
-            );
-        }
-        if !view.dynamics {
-            self.push(
-                Problem::new(
-                    ErrorKind::Name,
-                    statement.keyword.span,
-                    format!(
-                        "no dynamics rule declared yet: `{keyword}` runs in physical time and \
-                         needs one"
-                    ),
-                )
-                .with_help(
-                    "declare it first, e.g. `dynamics single_flip, acceptance = metropolis, attempt_time = 1 µs`",
-                ),
-            );
-        }
+        self.require_physical_time_model(statement, view, "runs in physical time and needs one");
         if self.problems.len() > before {
             return None;
         }

@@ -778,6 +778,43 @@ impl<'a> Checker<'a> {
         }
     }
 
+    /// A physical-time command needs a lattice, couplings and a dynamics rule; reports
+    /// each that is missing at the command's keyword. `needs` says what for.
+    fn require_physical_time_model(&mut self, statement: &Statement, view: &View, needs: &str) {
+        let keyword = &statement.keyword.name;
+        if !view.lattice {
+            self.push(
+                Problem::new(
+                    ErrorKind::Name,
+                    statement.keyword.span,
+                    format!("no lattice declared yet: `{keyword}` needs a model"),
+                )
+                .with_help("declare one first, e.g. `lattice pyrochlore L = 4`"),
+            );
+        } else if !view.couplings {
+            self.push(
+                Problem::new(
+                    ErrorKind::Name,
+                    statement.keyword.span,
+                    format!("no couplings declared yet: `{keyword}` needs a model"),
+                )
+                .with_help("declare them first, e.g. `couplings nearest J_eff = 1.8 K`"),
+            );
+        }
+        if !view.dynamics {
+            self.push(
+                Problem::new(
+                    ErrorKind::Name,
+                    statement.keyword.span,
+                    format!("no dynamics rule declared yet: `{keyword}` {needs}"),
+                )
+                .with_help(
+                    "declare a dynamics rule first: dynamics single_flip, attempt_time = 1 µs",
+                ),
+            );
+        }
+    }
+
     fn kind_name(
         &mut self,
         kind: &Ident,

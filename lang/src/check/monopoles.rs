@@ -217,7 +217,7 @@ impl Checker<'_> {
             "reachable" => self.reachable(statement, target, args, options, view),
             _ => self.cluster(statement, target, args, options, view),
         };
-        self.model_for_monopoles(statement, view);
+        self.require_physical_time_model(statement, view, "follows the rule's attempt times");
         if self.problems.len() > before {
             return None;
         }
@@ -240,42 +240,6 @@ impl Checker<'_> {
             }
             Some(ident) => Some(ident.name.clone()),
             None => Some(format!("last_{keyword}")),
-        }
-    }
-
-    /// A lattice, couplings and a dynamics rule must be declared.
-    fn model_for_monopoles(&mut self, statement: &Statement, view: &View) {
-        let keyword = &statement.keyword.name;
-        if !view.lattice {
-            self.push(
-                Problem::new(
-                    ErrorKind::Name,
-                    statement.keyword.span,
-                    format!("no lattice declared yet: `{keyword}` needs a model"),
-                )
-                .with_help("declare one first, e.g. `lattice pyrochlore L = 4`"),
-            );
-        } else if !view.couplings {
-            self.push(
-                Problem::new(
-                    ErrorKind::Name,
-                    statement.keyword.span,
-                    format!("no couplings declared yet: `{keyword}` needs a model"),
-                )
-                .with_help("declare them first, e.g. `couplings nearest J_eff = 1.1 K`"),
-            );
-        }
-        if !view.dynamics {
-            self.push(
-                Problem::new(
-                    ErrorKind::Name,
-                    statement.keyword.span,
-                    format!(
-                        "no dynamics rule declared yet: `{keyword}` follows the rule's attempt times"
-                    ),
-                )
-                .with_help("declare a dynamics rule first: dynamics single_flip, attempt_time = 1 µs"),
-            );
         }
     }
 
