@@ -40,27 +40,34 @@
 //! to date on every flip, so sampling `M(t)` and the monopole count on a
 //! uniform time grid costs nothing per flip.
 
-use crate::control::{Interrupt, Progress, ProgressFn};
-use crate::gating::{self, AttemptTimes, GateClasses, GatingError, GATE_CLASS_COUNT};
+use crate::couplings::CouplingError;
+use crate::gating::{AttemptTimes, GateClasses, GatingError, GATE_CLASS_COUNT};
 use crate::hamiltonian::NearestNeighbourIce;
 use crate::lattice::{easy_axis, LatticeError, Pyrochlore};
-use crate::metropolis::{initial_configuration, NearestNeighbourMetropolis, Start};
-use crate::rng::{RngStreams, SpinRng};
+
+use crate::rng::SpinRng;
 use rand::{Rng, RngCore};
 use serde::{Deserialize, Serialize};
 use std::fmt;
 
+mod dipolar;
+mod exchange_flips;
 mod exponential;
+mod protocol;
+mod recording;
+mod state;
+pub use dipolar::{nearest_neighbour_transverse_field_kelvin, DipolarGating, DipolarKinetics};
+pub use exchange_flips::ExchangeFlipEnergy;
 use exponential::ExponentialZiggurat;
+pub use protocol::{run_kinetics, KineticsModel, KineticsResult, KineticsSettings, Protocol};
+pub use recording::{choose_execution, KineticEngine, REJECTION_FREE_BELOW_ACCEPTANCE};
+use state::KineticState;
 
 /// μ_B/k_B in K/T (CODATA 2018, physics-reference §2).
 pub const BOHR_MAGNETON_KELVIN_PER_TESLA: f64 = 0.671_713_81;
 
 /// Most samples one recording may hold (memory guard for user input).
 pub const MAX_SAMPLES: u64 = 50_000_000;
-
-/// Steps (attempts or events) between two interrupt polls.
-const STEPS_PER_POLL: u64 = 1 << 18;
 
 /// Acceptance probability of a proposed flip.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
@@ -168,9 +175,9 @@ pub struct SpinView<'s> {
 /// finite set of values ("energy classes"), plus a cache hook.
 ///
 /// Contract: `energy_class` returns a value below `energy_class_count`; the
-/// class of a spin changes only when the spin itself or one of its six
-/// nearest neighbours flips (true for the nearest-neighbour model with a
-/// uniform field; wider couplings need a wider update set, not offered yet).
+/// class of a spin changes only when the spin itself, one of its six nearest
+/// neighbours or one of its [`further_partners`](Self::further_partners)
+/// flips.
 pub trait DiscreteFlipEnergy {
     /// Number of energy classes.
     fn energy_class_count(&self) -> usize;
@@ -181,6 +188,15 @@ pub trait DiscreteFlipEnergy {
     /// Called after `spin` flipped (`state` is the state after the flip), to
     /// update caches such as local fields.
     fn after_flip(&mut self, state: &SpinView<'_>, spin: usize);
+    /// Build caches for `state` (called when the engine starts or the
+    /// energetics are replaced).
+    fn attach(&mut self, _state: &SpinView<'_>) {}
+    /// Spins beyond the six nearest neighbours whose class changes when
+    /// `spin` flips (none for the nearest-neighbour model).
+    #[inline(always)]
+    fn further_partners(&self, _spin: usize) -> &[u32] {
+        &[]
+    }
 }
 
 /// `H = J_eff Σ_⟨ij⟩ σ_iσ_j − Σ_i σ_i μB(e_a·n̂)` (physics-reference §2).
@@ -292,6 +308,9 @@ pub enum KineticsError {
     MissingField,
     /// A projection axis of zero length or non-finite.
     InvalidProjectionAxis,
+    /// The couplings are unusable (non-finite, lattice too small for a
+    /// shell, table too large).
+    Couplings(CouplingError),
 }
 
 impl fmt::Display for KineticsError {
@@ -331,6 +350,7 @@ impl fmt::Display for KineticsError {
             KineticsError::InvalidProjectionAxis => {
                 write!(f, "the projection axis needs a non-zero finite direction")
             }
+            KineticsError::Couplings(e) => write!(f, "{e}"),
         }
     }
 }
@@ -350,7 +370,7 @@ struct Buckets {
     /// Index of each spin inside its bucket.
     position: Vec<u32>,
     /// Rate group of each spin.
-    class_of: Vec<u16>,
+    class_of: Vec<u32>,
     /// Σ_c |members_c| · rate_c (1/s), maintained incrementally and refreshed
     /// exactly every few thousand events to stop rounding drift.
     total_rate: f64,
@@ -361,13 +381,8 @@ struct Buckets {
 pub struct Kinetics<'a, E: DiscreteFlipEnergy> {
     lat: &'a Pyrochlore,
     energy: E,
-    sigma: Vec<i8>,
-    tetrahedron_sums: Vec<i8>,
-    gates: GateClasses,
-    /// Base-3 gate key of every spin ([`gating::gate_key`]), updated in O(1)
-    /// per neighbour flip so a flip re-classes its six neighbours from six
-    /// bytes instead of their 36 neighbour spins.
-    gate_keys: Vec<u8>,
+    /// Spins, charges, magnetisation and gate classes.
+    state: KineticState,
     /// Exponential variates for the rejection-free clock.
     exponential: Box<ExponentialZiggurat>,
     rule: AcceptanceRule,
@@ -379,14 +394,11 @@ pub struct Kinetics<'a, E: DiscreteFlipEnergy> {
     attempt_probability: Vec<f64>,
     /// Rate group of each class: classes with equal rates share a group, so
     /// the rejection-free scan runs over the few distinct rates only.
-    class_group: Vec<u16>,
+    class_group: Vec<u32>,
     /// Rate (1/s) of each group, in descending order.
     group_rate: Vec<f64>,
     shortest_attempt_seconds: f64,
     time_seconds: f64,
-    sublattice_sums: [i64; 4],
-    single_charges: u64,
-    double_charges: u64,
     rng: SpinRng,
     attempts: u64,
     flips: u64,
@@ -414,24 +426,10 @@ impl<'a, E: DiscreteFlipEnergy> Kinetics<'a, E> {
             return Err(KineticsError::InvalidTemperature(temperature_kelvin));
         }
         attempt_times.validate()?;
-        let tetrahedron_sums: Vec<i8> = (0..lat.tetrahedron_count())
-            .map(|t| crate::hamiltonian::tetrahedron_sum(lat, &sigma, t))
-            .collect();
-        let gates = GateClasses::new(lat, &sigma);
-        let gate_keys: Vec<u8> = (0..lat.spin_count())
-            .map(|i| gating::gate_key(lat, &sigma, i))
-            .collect();
-        let mut sublattice_sums = [0i64; 4];
-        for (i, &s) in sigma.iter().enumerate() {
-            sublattice_sums[i & 3] += s as i64;
-        }
         let mut engine = Self {
             lat,
+            state: KineticState::new(lat, sigma),
             energy,
-            sigma,
-            tetrahedron_sums,
-            gates,
-            gate_keys,
             exponential: Box::new(ExponentialZiggurat::new()),
             rule,
             temperature_kelvin,
@@ -442,23 +440,15 @@ impl<'a, E: DiscreteFlipEnergy> Kinetics<'a, E> {
             group_rate: Vec::new(),
             shortest_attempt_seconds: 1.0,
             time_seconds: 0.0,
-            sublattice_sums,
-            single_charges: 0,
-            double_charges: 0,
             rng,
             attempts: 0,
             flips: 0,
             buckets: None,
         };
-        engine.count_charges();
+        let view = engine.state.view(lat);
+        engine.energy.attach(&view);
         engine.rebuild_rates();
         Ok(engine)
-    }
-
-    fn count_charges(&mut self) {
-        let c = crate::metropolis::ChargeCounts::from_tetrahedron_sums(&self.tetrahedron_sums);
-        self.single_charges = c.single;
-        self.double_charges = c.double;
     }
 
     /// Recompute the per-class rate tables (after T, rule, times or energetics change).
@@ -482,23 +472,13 @@ impl<'a, E: DiscreteFlipEnergy> Kinetics<'a, E> {
         self.class_group = self
             .class_rate
             .iter()
-            .map(|&r| rates.iter().position(|&x| x == r + 0.0).unwrap_or(0) as u16)
+            .map(|&r| rates.partition_point(|&x| x > r + 0.0) as u32)
             .collect();
         self.group_rate = rates;
         if self.buckets.is_some() {
             // The grouping may have changed: regroup every spin, O(N).
             self.build_buckets();
         }
-    }
-
-    /// Change the temperature (rates are rebuilt; the state is kept).
-    pub fn set_temperature(&mut self, temperature_kelvin: f64) -> Result<(), KineticsError> {
-        if !(temperature_kelvin >= 0.0 && temperature_kelvin.is_finite()) {
-            return Err(KineticsError::InvalidTemperature(temperature_kelvin));
-        }
-        self.temperature_kelvin = temperature_kelvin;
-        self.rebuild_rates();
-        Ok(())
     }
 
     /// Change the attempt-time table.
@@ -513,6 +493,8 @@ impl<'a, E: DiscreteFlipEnergy> Kinetics<'a, E> {
     /// are recomputed.
     pub fn set_energy(&mut self, energy: E) {
         self.energy = energy;
+        let view = self.state.view(self.lat);
+        self.energy.attach(&view);
         self.buckets = None;
         self.rebuild_rates();
     }
@@ -522,141 +504,42 @@ impl<'a, E: DiscreteFlipEnergy> Kinetics<'a, E> {
         &self.energy
     }
 
-    /// Current physical time (s).
-    pub fn time_seconds(&self) -> f64 {
-        self.time_seconds
-    }
-
-    /// Pseudospins.
-    pub fn sigma(&self) -> &[i8] {
-        &self.sigma
-    }
-
     /// Tetrahedron sums `S_t` (`Q_t = ±S_t/2`).
     pub fn tetrahedron_sums(&self) -> &[i8] {
-        &self.tetrahedron_sums
+        &self.state.tetrahedron_sums
     }
 
     /// Per-spin gate classes.
     pub fn gate_classes(&self) -> &GateClasses {
-        &self.gates
+        &self.state.gates
     }
 
-    /// The lattice.
-    pub fn lattice(&self) -> &'a Pyrochlore {
-        self.lat
-    }
-
-    /// Temperature (K).
-    pub fn temperature_kelvin(&self) -> f64 {
-        self.temperature_kelvin
-    }
-
-    /// `M = Σ_i σ_i e_{a(i)}` (units of μ).
-    pub fn magnetisation(&self) -> [f64; 3] {
-        let mut m = [0.0; 3];
-        for (a, &n) in self.sublattice_sums.iter().enumerate() {
-            let e = easy_axis(a);
-            for c in 0..3 {
-                m[c] += n as f64 * e[c];
-            }
-        }
-        m
-    }
-
-    /// Σ_t |Q_t| (a double charge counts twice).
-    pub fn monopole_count(&self) -> u64 {
-        self.single_charges + 2 * self.double_charges
-    }
-
-    /// Tetrahedra with |Q| = 2.
-    pub fn double_charge_count(&self) -> u64 {
-        self.double_charges
-    }
-
-    /// Attempts made by the attempt-based execution so far.
-    pub fn attempt_count(&self) -> u64 {
-        self.attempts
-    }
-
-    /// Flips made so far (both executions).
-    pub fn flip_count(&self) -> u64 {
-        self.flips
+    /// `ΔE` (K) of flipping `spin` now, from its energy class.
+    pub fn flip_cost_kelvin(&self, spin: usize) -> f64 {
+        let view = self.view();
+        self.energy
+            .energy_class_cost_kelvin(self.energy.energy_class(&view, spin))
     }
 
     /// Flip rate (1/s) of `spin` in the current state.
     pub fn flip_rate_per_second(&self, spin: usize) -> f64 {
         let view = self.view();
         let class = self.energy.energy_class(&view, spin) * GATE_CLASS_COUNT
-            + self.gates.class(spin) as usize;
+            + self.state.gates.class(spin) as usize;
         self.class_rate[class]
     }
 
     fn view(&self) -> SpinView<'_> {
-        SpinView {
-            lattice: self.lat,
-            sigma: &self.sigma,
-            tetrahedron_sums: &self.tetrahedron_sums,
-        }
+        self.state.view(self.lat)
     }
 
     /// Flip `spin` and update every cache; returns its gate class.
     #[inline(always)]
     fn apply_flip<O: FlipObserver>(&mut self, spin: usize, observer: &mut O) -> u8 {
         let lat = self.lat;
-        let down = lat.down_tetrahedra();
-        debug_assert!(spin < self.sigma.len());
-        // SAFETY: `spin < N` (every caller draws it from 0..N or from a
-        // bucket of spins); `spin >> 2 < N/4` and `down[spin] < N/2` index
-        // the tetrahedron sums by construction of the lattice tables.
-        let (s, up_t, down_t) = unsafe {
-            (
-                *self.sigma.get_unchecked(spin),
-                spin >> 2,
-                *down.get_unchecked(spin) as usize,
-            )
-        };
-        unsafe {
-            *self.sigma.get_unchecked_mut(spin) = -s;
-            for t in [up_t, down_t] {
-                let old = *self.tetrahedron_sums.get_unchecked(t);
-                let new = old - 2 * s;
-                *self.tetrahedron_sums.get_unchecked_mut(t) = new;
-                // Branch-free charge bookkeeping: which of |S| = 2, 4 the
-                // tetrahedron leaves and enters is data-dependent and would
-                // mispredict about half the time.
-                let (o, n) = (old.unsigned_abs() as u64, new.unsigned_abs() as u64);
-                self.single_charges = self
-                    .single_charges
-                    .wrapping_add((n == 2) as u64)
-                    .wrapping_sub((o == 2) as u64);
-                self.double_charges = self
-                    .double_charges
-                    .wrapping_add((n == 4) as u64)
-                    .wrapping_sub((o == 4) as u64);
-            }
-            *self.sublattice_sums.get_unchecked_mut(spin & 3) -= 2 * s as i64;
-        }
-        let gate = self.gates.as_slice()[spin];
-        let view = SpinView {
-            lattice: lat,
-            sigma: &self.sigma,
-            tetrahedron_sums: &self.tetrahedron_sums,
-        };
+        let gate = self.state.flip(lat, spin);
+        let view = self.state.view(lat);
         self.energy.after_flip(&view, spin);
-        let gates = self.gates.as_mut_slice();
-        let a = spin & 3;
-        for &j in lat.neighbours(spin) {
-            let j = j as usize;
-            // SAFETY: neighbour indices are < N = gate_keys.len() =
-            // gates.len(); 4·(j & 3) + a < 16.
-            unsafe {
-                let w = *gating::KEY_WEIGHT.get_unchecked(4 * (j & 3) + a);
-                let key = self.gate_keys.get_unchecked_mut(j);
-                *key = (*key as i8 - s * w) as u8;
-                *gates.get_unchecked_mut(j) = gating::class_of_key(*key);
-            }
-        }
         self.flips += 1;
         observer.on_flip(&FlipEvent {
             time_seconds: self.time_seconds,
@@ -667,36 +550,13 @@ impl<'a, E: DiscreteFlipEnergy> Kinetics<'a, E> {
         gate
     }
 
-    /// Advance towards `t_end_seconds` by at most `max_steps` attempts or
-    /// events; returns whether `t_end_seconds` was reached.
-    pub fn advance<O: FlipObserver>(
-        &mut self,
-        t_end_seconds: f64,
-        execution: Execution,
-        max_steps: u64,
-        observer: &mut O,
-    ) -> bool {
-        match execution {
-            Execution::AttemptBased => {
-                self.buckets = None;
-                self.advance_attempts(t_end_seconds, max_steps, observer)
-            }
-            Execution::RejectionFree => {
-                if self.buckets.is_none() {
-                    self.build_buckets();
-                }
-                self.advance_events(t_end_seconds, max_steps, observer)
-            }
-        }
-    }
-
     fn advance_attempts<O: FlipObserver>(
         &mut self,
         t_end: f64,
         max_steps: u64,
         observer: &mut O,
     ) -> bool {
-        let n = self.sigma.len();
+        let n = self.state.sigma.len();
         let dt = self.shortest_attempt_seconds / n as f64;
         let remaining = (t_end - self.time_seconds) / dt;
         // NaN (no time left to compare) counts as reached.
@@ -721,7 +581,7 @@ impl<'a, E: DiscreteFlipEnergy> Kinetics<'a, E> {
             let u = (self.rng.next_u64() >> 11) as f64 * (1.0 / (1u64 << 53) as f64);
             let view = self.view();
             // SAFETY: site < N = gates.len().
-            let gate = unsafe { *self.gates.as_slice().get_unchecked(site) } as usize;
+            let gate = unsafe { *self.state.gates.as_slice().get_unchecked(site) } as usize;
             let class = self.energy.energy_class(&view, site) * GATE_CLASS_COUNT + gate;
             let p = self.attempt_probability[class];
             if u < p {
@@ -737,19 +597,19 @@ impl<'a, E: DiscreteFlipEnergy> Kinetics<'a, E> {
 
     fn build_buckets(&mut self) {
         let groups = self.group_rate.len();
-        let n = self.sigma.len();
+        let n = self.state.sigma.len();
         let mut members: Vec<Vec<u32>> = vec![Vec::new(); groups];
         let mut position = vec![0u32; n];
-        let mut class_of = vec![0u16; n];
+        let mut class_of = vec![0u32; n];
         {
             let view = self.view();
             for spin in 0..n {
                 let class = self.energy.energy_class(&view, spin) * GATE_CLASS_COUNT
-                    + self.gates.class(spin) as usize;
+                    + self.state.gates.class(spin) as usize;
                 let c = self.class_group[class] as usize;
                 position[spin] = members[c].len() as u32;
                 members[c].push(spin as u32);
-                class_of[spin] = c as u16;
+                class_of[spin] = c as u32;
             }
         }
         // Head room so that buckets rarely grow (and reallocate) later.
@@ -829,19 +689,15 @@ impl<'a, E: DiscreteFlipEnergy> Kinetics<'a, E> {
             let lat = self.lat;
             let nb = lat.neighbours(spin);
             let update = [spin as u32, nb[0], nb[1], nb[2], nb[3], nb[4], nb[5]];
-            let view = SpinView {
-                lattice: lat,
-                sigma: &self.sigma,
-                tetrahedron_sums: &self.tetrahedron_sums,
-            };
+            let view = self.state.view(lat);
             // Two passes: the seven new groups are independent loads and
             // can be computed in parallel; the bucket moves, which chain
             // through shared bucket lengths, follow.
-            let mut groups = [0u16; 7];
+            let mut groups = [0u32; 7];
             for (g, &j) in groups.iter_mut().zip(&update) {
                 let j = j as usize;
                 // SAFETY: j < N = gates.len().
-                let gate = unsafe { *self.gates.as_slice().get_unchecked(j) } as usize;
+                let gate = unsafe { *self.state.gates.as_slice().get_unchecked(j) } as usize;
                 let class = self.energy.energy_class(&view, j) * GATE_CLASS_COUNT + gate;
                 // SAFETY: class < class_group.len() by the DiscreteFlipEnergy contract.
                 debug_assert!(class < self.class_group.len());
@@ -850,106 +706,94 @@ impl<'a, E: DiscreteFlipEnergy> Kinetics<'a, E> {
             for (&g, &j) in groups.iter().zip(&update) {
                 b.move_spin(j as usize, g as usize, &self.group_rate);
             }
+            for &j in self.energy.further_partners(spin) {
+                let j = j as usize;
+                let class = self.energy.energy_class(&view, j) * GATE_CLASS_COUNT
+                    + self.state.gates.class(j) as usize;
+                b.move_spin(j, self.class_group[class] as usize, &self.group_rate);
+            }
             b.events_since_refresh += 1;
         }
         self.buckets = Some(b);
         reached
     }
+}
 
-    /// Record `duration_seconds` of kinetics sampled every
-    /// `sample_interval_seconds` (times relative to the start of the
-    /// recording; the first sample is the current state). Polls `interrupt`
-    /// at least every 2^18 steps and returns the samples so far, marked
-    /// interrupted. Progress counts samples taken out of samples planned
-    /// (proportional to simulated time).
-    #[allow(clippy::too_many_arguments)]
-    pub fn record<O: FlipObserver>(
+impl<'a, E: DiscreteFlipEnergy> KineticEngine<'a> for Kinetics<'a, E> {
+    fn advance<O: FlipObserver>(
         &mut self,
-        duration_seconds: f64,
-        sample_interval_seconds: f64,
+        t_end_seconds: f64,
         execution: Execution,
-        projection_axis: [f64; 3],
-        interrupt: &Interrupt,
-        progress: ProgressFn<'_>,
+        max_steps: u64,
         observer: &mut O,
-    ) -> Result<Trajectory, KineticsError> {
-        let samples = sample_count(duration_seconds, sample_interval_seconds)?;
-        let axis = unit(projection_axis).ok_or(KineticsError::InvalidProjectionAxis)?;
-        let mut trajectory = Trajectory {
-            execution,
-            temperature_kelvin: self.temperature_kelvin,
-            times_seconds: Vec::with_capacity(samples as usize),
-            magnetisation: Vec::with_capacity(samples as usize),
-            projection_axis: axis,
-            magnetisation_projection: Vec::with_capacity(samples as usize),
-            monopole_count: Vec::with_capacity(samples as usize),
-            double_charge_count: Vec::with_capacity(samples as usize),
-            spin_count: self.sigma.len(),
-            flips: 0,
-            attempts: 0,
-            interrupted: false,
-        };
-        let (flips0, attempts0) = (self.flips, self.attempts);
-        let t0 = self.time_seconds;
-        let report_every = (samples / 200).max(1);
-        let label = format!("kinetics: samples of simulated time ({execution:?})");
-        self.push_sample(&mut trajectory, t0);
-        'grid: for k in 1..samples {
-            let target = t0 + k as f64 * sample_interval_seconds;
-            loop {
-                if interrupt.is_requested() {
-                    trajectory.interrupted = true;
-                    break 'grid;
-                }
-                if self.advance(target, execution, STEPS_PER_POLL, observer) {
-                    break;
-                }
+    ) -> bool {
+        match execution {
+            Execution::AttemptBased => {
+                self.buckets = None;
+                self.advance_attempts(t_end_seconds, max_steps, observer)
             }
-            self.push_sample(&mut trajectory, t0);
-            if k % report_every == 0 {
-                progress(&Progress {
-                    label: label.clone(),
-                    done: k + 1,
-                    total: samples,
-                });
+            Execution::RejectionFree => {
+                if self.buckets.is_none() {
+                    self.build_buckets();
+                }
+                self.advance_events(t_end_seconds, max_steps, observer)
             }
         }
-        trajectory.flips = self.flips - flips0;
-        trajectory.attempts = self.attempts - attempts0;
-        Ok(trajectory)
     }
 
-    fn push_sample(&self, trajectory: &mut Trajectory, t0: f64) {
-        let m = self.magnetisation();
-        trajectory.times_seconds.push(self.time_seconds - t0);
-        trajectory
-            .magnetisation_projection
-            .push(crate::lattice::dot(m, trajectory.projection_axis));
-        trajectory.magnetisation.push(m);
-        trajectory.monopole_count.push(self.monopole_count());
-        trajectory.double_charge_count.push(self.double_charges);
+    fn time_seconds(&self) -> f64 {
+        self.time_seconds
     }
 
-    /// Run for `duration_seconds` without sampling (preparation), polling
-    /// `interrupt`; returns false if interrupted.
-    pub fn run_for(
-        &mut self,
-        duration_seconds: f64,
-        execution: Execution,
-        interrupt: &Interrupt,
-    ) -> Result<bool, KineticsError> {
-        if !(duration_seconds >= 0.0 && duration_seconds.is_finite()) {
-            return Err(KineticsError::InvalidDuration(duration_seconds));
+    fn set_time_seconds(&mut self, time_seconds: f64) {
+        self.time_seconds = time_seconds;
+    }
+
+    fn set_temperature(&mut self, temperature_kelvin: f64) -> Result<(), KineticsError> {
+        if !(temperature_kelvin >= 0.0 && temperature_kelvin.is_finite()) {
+            return Err(KineticsError::InvalidTemperature(temperature_kelvin));
         }
-        let target = self.time_seconds + duration_seconds;
-        loop {
-            if interrupt.is_requested() {
-                return Ok(false);
-            }
-            if self.advance(target, execution, STEPS_PER_POLL, &mut ()) {
-                return Ok(true);
-            }
-        }
+        self.temperature_kelvin = temperature_kelvin;
+        self.rebuild_rates();
+        Ok(())
+    }
+
+    fn temperature_kelvin(&self) -> f64 {
+        self.temperature_kelvin
+    }
+
+    fn lattice(&self) -> &'a Pyrochlore {
+        self.lat
+    }
+
+    fn sigma(&self) -> &[i8] {
+        &self.state.sigma
+    }
+
+    fn magnetisation(&self) -> [f64; 3] {
+        self.state.magnetisation()
+    }
+
+    fn monopole_count(&self) -> u64 {
+        self.state.monopole_count()
+    }
+
+    fn double_charge_count(&self) -> u64 {
+        self.state.double_charges
+    }
+
+    fn flip_count(&self) -> u64 {
+        self.flips
+    }
+
+    fn attempt_count(&self) -> u64 {
+        self.attempts
+    }
+
+    fn attempt_acceptance(&self) -> f64 {
+        let n = self.state.sigma.len();
+        let total: f64 = (0..n).map(|i| self.flip_rate_per_second(i)).sum();
+        (total * self.shortest_attempt_seconds / n as f64).min(1.0)
     }
 }
 
@@ -977,7 +821,7 @@ impl Buckets {
             let target = self.members.get_unchecked_mut(new);
             *self.position.get_unchecked_mut(spin) = target.len() as u32;
             target.push(spin as u32);
-            *self.class_of.get_unchecked_mut(spin) = new as u16;
+            *self.class_of.get_unchecked_mut(spin) = new as u32;
             self.total_rate += *rate.get_unchecked(new) - *rate.get_unchecked(old);
         }
     }
@@ -1051,184 +895,6 @@ pub struct Trajectory {
     pub interrupted: bool,
 }
 
-/// What is done before the recording starts at t = 0.
-#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
-pub enum Protocol {
-    /// Record at the run temperature, with the run's field (if any) on.
-    Evolve,
-    /// Evolve `preparation_seconds` with the field on, switch it off at
-    /// t = 0 and record the decay.
-    FieldQuench {
-        /// Time in the field before the switch (s).
-        preparation_seconds: f64,
-    },
-    /// Evolve `preparation_seconds` at `initial_temperature_kelvin`, step
-    /// to the run temperature at t = 0 and record.
-    TemperatureStep {
-        /// Temperature before the step (K).
-        initial_temperature_kelvin: f64,
-        /// Time at the initial temperature (s).
-        preparation_seconds: f64,
-    },
-}
-
-/// A complete kinetics run for the nearest-neighbour model.
-#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
-pub struct KineticsSettings {
-    /// L.
-    pub cells_per_side: usize,
-    /// Nearest-neighbour model.
-    pub model: NearestNeighbourIce,
-    /// Optional uniform field (on throughout for `Evolve`, switched off at
-    /// t = 0 for `FieldQuench`).
-    pub field: Option<ZeemanField>,
-    /// Temperature of the recording (K).
-    pub temperature_kelvin: f64,
-    /// Acceptance rule.
-    pub rule: AcceptanceRule,
-    /// Attempt time per gate class.
-    pub attempt_times: AttemptTimes,
-    /// Execution.
-    pub execution: Execution,
-    /// Protocol.
-    pub protocol: Protocol,
-    /// Initial configuration.
-    pub start: Start,
-    /// Equilibrium Metropolis sweeps (zero field) at the starting
-    /// temperature before the protocol.
-    pub equilibration_sweeps: u64,
-    /// Length of the recording (s).
-    pub duration_seconds: f64,
-    /// Grid spacing (s).
-    pub sample_interval_seconds: f64,
-    /// Projection axis of M (default: the field direction, else [0, 0, 1]).
-    pub projection_axis: Option<[f64; 3]>,
-    /// Seed.
-    pub seed: u64,
-}
-
-/// Settings and trajectory of a finished (or interrupted) run.
-#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
-pub struct KineticsResult {
-    /// What was asked.
-    pub settings: KineticsSettings,
-    /// What was recorded.
-    pub trajectory: Trajectory,
-}
-
-/// Run a kinetics protocol (validates everything first).
-pub fn run_kinetics(
-    settings: &KineticsSettings,
-    interrupt: &Interrupt,
-    progress: ProgressFn<'_>,
-) -> Result<KineticsResult, KineticsError> {
-    let lat = Pyrochlore::new(settings.cells_per_side).map_err(KineticsError::Lattice)?;
-    sample_count(settings.duration_seconds, settings.sample_interval_seconds)?;
-    let t = settings.temperature_kelvin;
-    if !(t >= 0.0 && t.is_finite()) {
-        return Err(KineticsError::InvalidTemperature(t));
-    }
-    let with_field = NearestNeighbourFlipEnergy::new(&settings.model, settings.field.as_ref())
-        .ok_or(KineticsError::InvalidField)?;
-    let zero_field = NearestNeighbourFlipEnergy::new(&settings.model, None)
-        .ok_or(KineticsError::InvalidField)?;
-    let axis = match (settings.projection_axis, &settings.field) {
-        (Some(a), _) => a,
-        (None, Some(f)) => f.unit_direction().ok_or(KineticsError::InvalidField)?,
-        (None, None) => [0.0, 0.0, 1.0],
-    };
-    unit(axis).ok_or(KineticsError::InvalidProjectionAxis)?;
-    let (start_temperature, preparation) = match &settings.protocol {
-        Protocol::Evolve => (t, 0.0),
-        Protocol::FieldQuench {
-            preparation_seconds,
-        } => {
-            if settings.field.is_none() {
-                return Err(KineticsError::MissingField);
-            }
-            (t, *preparation_seconds)
-        }
-        Protocol::TemperatureStep {
-            initial_temperature_kelvin,
-            preparation_seconds,
-        } => (*initial_temperature_kelvin, *preparation_seconds),
-    };
-    if !(start_temperature >= 0.0 && start_temperature.is_finite()) {
-        return Err(KineticsError::InvalidTemperature(start_temperature));
-    }
-    if !(preparation >= 0.0 && preparation.is_finite()) {
-        return Err(KineticsError::InvalidDuration(preparation));
-    }
-    let streams = RngStreams::new(settings.seed);
-    let mut start_rng = streams.stream(0);
-    let mut sigma = initial_configuration(&lat, settings.start, &mut start_rng);
-    let mut interrupted = false;
-    if settings.equilibration_sweeps > 0 {
-        let mut eq = NearestNeighbourMetropolis::from_configuration(
-            &lat,
-            &settings.model,
-            start_temperature,
-            sigma,
-            streams.stream(1),
-        )
-        .expect("initial_configuration has one ±1 entry per spin");
-        for k in 0..settings.equilibration_sweeps {
-            if k % 64 == 0 && interrupt.is_requested() {
-                interrupted = true;
-                break;
-            }
-            eq.sweep();
-        }
-        sigma = eq.sigma().to_vec();
-    }
-    let quench = matches!(settings.protocol, Protocol::FieldQuench { .. });
-    let mut engine = Kinetics::new(
-        &lat,
-        with_field,
-        sigma,
-        settings.rule,
-        start_temperature,
-        settings.attempt_times.clone(),
-        streams.stream(2),
-    )?;
-    if !interrupted && preparation > 0.0 {
-        interrupted = !engine.run_for(preparation, settings.execution, interrupt)?;
-    }
-    if quench {
-        engine.set_energy(zero_field);
-    }
-    engine.set_temperature(t)?;
-    engine.time_seconds = 0.0;
-    let mut trajectory = if interrupted {
-        let mut tr = engine.record(
-            0.0,
-            settings.sample_interval_seconds,
-            settings.execution,
-            axis,
-            &Interrupt::new(),
-            progress,
-            &mut (),
-        )?;
-        tr.interrupted = true;
-        tr
-    } else {
-        engine.record(
-            settings.duration_seconds,
-            settings.sample_interval_seconds,
-            settings.execution,
-            axis,
-            interrupt,
-            progress,
-            &mut (),
-        )?
-    };
-    trajectory.temperature_kelvin = t;
-    Ok(KineticsResult {
-        settings: settings.clone(),
-        trajectory,
-    })
-}
-
 /// Normalised autocorrelation `⟨M(0)·M(t)⟩/⟨M·M⟩` of the magnetisation
 /// vector (mean removed per component) over all time origins, for lags
 /// `0..=max_lag` samples. A plain O(n·lags) estimator used by the tests and
@@ -1267,8 +933,10 @@ pub fn magnetisation_autocorrelation(trajectory: &Trajectory, max_lag: usize) ->
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::control::ignore_progress;
+    use crate::control::{ignore_progress, Interrupt};
+    use crate::metropolis::{initial_configuration, NearestNeighbourMetropolis, Start};
     use crate::observe::integrated_autocorrelation_time;
+    use crate::rng::RngStreams;
 
     fn free_spin_engine(
         lat: &Pyrochlore,
@@ -1412,7 +1080,7 @@ mod tests {
             sigma,
             AcceptanceRule::Glauber,
             1.0,
-            AttemptTimes::bimodal(1.0, gating::SlowGate::Ratio(5.0)).unwrap(),
+            AttemptTimes::bimodal(1.0, crate::gating::SlowGate::Ratio(5.0)).unwrap(),
             rng,
         )
         .unwrap();
@@ -1550,7 +1218,7 @@ mod tests {
     fn field_quench_magnetisation_decays_and_interrupt_keeps_samples() {
         let settings = KineticsSettings {
             cells_per_side: 2,
-            model: NearestNeighbourIce::new(1.1),
+            model: KineticsModel::NearestNeighbour(NearestNeighbourIce::new(1.1)),
             field: Some(ZeemanField {
                 field_tesla: 1.0,
                 direction: [0.0, 0.0, 1.0],
@@ -1559,7 +1227,7 @@ mod tests {
             temperature_kelvin: 1.5,
             rule: AcceptanceRule::Metropolis,
             attempt_times: AttemptTimes::uniform(1e-3).unwrap(),
-            execution: Execution::RejectionFree,
+            execution: Some(Execution::RejectionFree),
             protocol: Protocol::FieldQuench {
                 preparation_seconds: 0.2,
             },
@@ -1597,12 +1265,12 @@ mod tests {
     fn temperature_step_and_bad_input() {
         let mut settings = KineticsSettings {
             cells_per_side: 2,
-            model: NearestNeighbourIce::new(1.1),
+            model: KineticsModel::NearestNeighbour(NearestNeighbourIce::new(1.1)),
             field: None,
             temperature_kelvin: 0.6,
             rule: AcceptanceRule::Glauber,
             attempt_times: AttemptTimes::uniform(1e-3).unwrap(),
-            execution: Execution::AttemptBased,
+            execution: Some(Execution::AttemptBased),
             protocol: Protocol::TemperatureStep {
                 initial_temperature_kelvin: 10.0,
                 preparation_seconds: 0.05,

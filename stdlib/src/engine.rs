@@ -78,7 +78,13 @@ impl std::error::Error for SamplerError {}
 /// has offset `g` and a cell shift `s` fixed by `(f_j, f_i)`, so along `z`
 /// both the targets and the row entries advance by 16: two contiguous runs
 /// per `(f_j, x, y)` (before and after the periodic wrap).
-fn add_source_field(field: &mut [f64], row: &[f64], l: usize, source: usize, delta: f64) {
+pub(crate) fn add_source_field(
+    field: &mut [f64],
+    row: &[f64],
+    l: usize,
+    source: usize,
+    delta: f64,
+) {
     let n = field.len();
     assert!(row.len() == n && n == 16 * l * l * l && source < n);
     let p_i = source / 4;

@@ -377,6 +377,49 @@ impl DipolarInteraction {
         }
         Ok(())
     }
+
+    /// The Ewald-summed dipolar *field* as three translation-invariant
+    /// tables, one per Cartesian component: entry `(a, j)` of table `c` is
+    /// component `c` of `D r_nn³ A(r_j − r_a)·e_a` (K per unit pseudospin),
+    /// the field at spin `j` of the spin of sublattice `a` at the origin with
+    /// `σ = +1`. Its projection on `e_j` is the σσ coefficient of
+    /// [`Self::add_to`]; the rest is the transverse field. The self-image
+    /// entry (`j = a`) is left out: by the cubic symmetry of the images it
+    /// is parallel to `e_a` (derived) and has no transverse part.
+    pub fn field_tables(&self, lat: &Pyrochlore) -> Result<[CouplingTable; 3], CouplingError> {
+        require_finite("D (K)", self.d_kelvin)?;
+        let kernel = EwaldKernel::new(EwaldParameters::choose(lat.box_length(), self.accuracy)?);
+        let scale = self.d_kelvin * NEAREST_NEIGHBOUR_DISTANCE.powi(3);
+        let n = lat.spin_count();
+        let mut tables = [
+            CouplingTable::zero(lat)?,
+            CouplingTable::zero(lat)?,
+            CouplingTable::zero(lat)?,
+        ];
+        for a in 0..4 {
+            let ra = lat.position(a);
+            let ea = easy_axis(a);
+            let values: Vec<[f64; 3]> = (0..n)
+                .into_par_iter()
+                .map(|j| {
+                    if j == a {
+                        return [0.0; 3];
+                    }
+                    let rj = lat.position(j);
+                    let t = kernel.dipolar_tensor([rj[0] - ra[0], rj[1] - ra[1], rj[2] - ra[2]]);
+                    [0, 1, 2].map(|p| scale * (t[p][0] * ea[0] + t[p][1] * ea[1] + t[p][2] * ea[2]))
+                })
+                .collect();
+            for (j, v) in values.into_iter().enumerate() {
+                if j != a {
+                    for (table, component) in tables.iter_mut().zip(v) {
+                        table.add_row_entry(a, j, component);
+                    }
+                }
+            }
+        }
+        Ok(tables)
+    }
 }
 
 #[cfg(test)]

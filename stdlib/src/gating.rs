@@ -350,6 +350,161 @@ impl AttemptTimes {
     }
 }
 
+/// Attempt time as a function of a continuous transverse-field magnitude,
+/// for the what-if in which `h⊥` comes from the full dipolar sum instead of
+/// the six-neighbour classes (physics-reference §5).
+///
+/// The argument `x` is `|h⊥|` in units of the transverse field one nearest
+/// neighbour's dipole alone produces (so a lone neighbour gives `x = 1`, as a
+/// lone neighbour gives `|h⊥|/|g| = 1` in the six-neighbour classes).
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub enum TransverseRateLaw {
+    /// A law tabulated at `x = k·x_max/(n−1)`, `k = 0..n`, interpolated
+    /// linearly in the rate `1/τ`; beyond `x_max` the last value holds.
+    Table {
+        /// Largest tabulated `x`.
+        x_max: f64,
+        /// Attempt time (s) at each grid point (`+∞` = frozen).
+        attempt_time_seconds: Vec<f64>,
+    },
+    /// The bimodal preset on a continuous `x`: below `threshold` the spin is
+    /// slow (or frozen), above it fast. `threshold = 1` sits half-way between
+    /// the closed class (0) and the smallest open class (2) of the
+    /// six-neighbour classification.
+    Step {
+        /// `x` below which the spin is slow.
+        threshold: f64,
+        /// Attempt time (s) above the threshold.
+        fast_seconds: f64,
+        /// Attempt time (s) below it (`+∞` = frozen).
+        slow_seconds: f64,
+    },
+}
+
+/// Where the bimodal step of [`TransverseRateLaw::bimodal`] sits.
+pub const CONTINUOUS_GATE_THRESHOLD: f64 = 1.0;
+
+impl TransverseRateLaw {
+    /// Tabulate `law` (x ↦ attempt time in s) on `points ≥ 2` grid points over `[0, x_max]`.
+    pub fn from_rate_law(
+        law: impl Fn(f64) -> f64,
+        x_max: f64,
+        points: usize,
+    ) -> Result<Self, GatingError> {
+        let points = points.max(2);
+        let times: Vec<f64> = (0..points)
+            .map(|k| law(x_max * k as f64 / (points - 1) as f64))
+            .collect();
+        let table = TransverseRateLaw::Table {
+            x_max,
+            attempt_time_seconds: times,
+        };
+        table.validate()?;
+        Ok(table)
+    }
+
+    /// The bimodal preset with the step at [`CONTINUOUS_GATE_THRESHOLD`].
+    pub fn bimodal(fast_seconds: f64, slow: SlowGate) -> Result<Self, GatingError> {
+        let classes = AttemptTimes::bimodal(fast_seconds, slow)?;
+        Ok(TransverseRateLaw::Step {
+            threshold: CONTINUOUS_GATE_THRESHOLD,
+            fast_seconds,
+            slow_seconds: classes.attempt_time_seconds[0],
+        })
+    }
+
+    /// Check every attempt time (positive or +∞) and that something can move.
+    pub fn validate(&self) -> Result<(), GatingError> {
+        let check = |t: f64, x: f64| {
+            if t.is_nan() || t <= 0.0 {
+                Err(GatingError::InvalidAttemptTime {
+                    class: 0,
+                    magnitude: x,
+                    attempt_time_seconds: t,
+                })
+            } else {
+                Ok(())
+            }
+        };
+        match self {
+            TransverseRateLaw::Table {
+                x_max,
+                attempt_time_seconds,
+            } => {
+                let n = attempt_time_seconds.len().max(2);
+                for (k, &t) in attempt_time_seconds.iter().enumerate() {
+                    check(t, x_max * k as f64 / (n - 1) as f64)?;
+                }
+                if attempt_time_seconds.iter().all(|t| t.is_infinite()) {
+                    return Err(GatingError::AllFrozen);
+                }
+            }
+            TransverseRateLaw::Step {
+                fast_seconds,
+                slow_seconds,
+                threshold,
+            } => {
+                check(*fast_seconds, *threshold)?;
+                check(*slow_seconds, 0.0)?;
+                if fast_seconds.is_infinite() {
+                    return Err(GatingError::AllFrozen);
+                }
+            }
+        }
+        Ok(())
+    }
+
+    /// Attempt rate (1/s) at `x ≥ 0`.
+    #[inline]
+    pub fn rate_per_second(&self, x: f64) -> f64 {
+        match self {
+            TransverseRateLaw::Table {
+                x_max,
+                attempt_time_seconds,
+            } => {
+                let n = attempt_time_seconds.len();
+                let u = (x / x_max * (n - 1) as f64).clamp(0.0, (n - 1) as f64);
+                let k = (u as usize).min(n - 2);
+                let f = u - k as f64;
+                let (r0, r1) = (
+                    1.0 / attempt_time_seconds[k],
+                    1.0 / attempt_time_seconds[k + 1],
+                );
+                r0 + f * (r1 - r0)
+            }
+            TransverseRateLaw::Step {
+                threshold,
+                fast_seconds,
+                slow_seconds,
+            } => {
+                if x < *threshold {
+                    1.0 / slow_seconds
+                } else {
+                    1.0 / fast_seconds
+                }
+            }
+        }
+    }
+
+    /// Largest attempt rate (1/s) anywhere.
+    pub fn fastest_rate_per_second(&self) -> f64 {
+        match self {
+            TransverseRateLaw::Table {
+                attempt_time_seconds,
+                ..
+            } => attempt_time_seconds
+                .iter()
+                .map(|t| 1.0 / t)
+                .fold(0.0, f64::max),
+            TransverseRateLaw::Step {
+                fast_seconds,
+                slow_seconds,
+                ..
+            } => (1.0 / fast_seconds).max(1.0 / slow_seconds),
+        }
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

@@ -29,7 +29,7 @@
 //! there for what each mode assumes.
 
 use crate::control::{Interrupt, Progress, ProgressFn};
-use crate::dynamics::{DiscreteFlipEnergy, Execution, FlipEvent, FlipObserver, Kinetics};
+use crate::dynamics::{Execution, FlipEvent, FlipObserver, KineticEngine};
 use crate::figure::{FigureError, PALETTE};
 use crate::gating::{gate_class, AttemptTimes, GATE_CLASS_COUNT};
 use crate::lattice::Pyrochlore;
@@ -347,8 +347,10 @@ impl FlipObserver for MonopoleTracker<'_> {
 /// their positions every `sample_interval_seconds`. Interrupt is polled
 /// between chunks of 2^18 steps; on interrupt the history so far is returned
 /// (marked). Progress counts samples.
-pub fn track_monopoles<E: DiscreteFlipEnergy>(
-    engine: &mut Kinetics<'_, E>,
+/// Works with every engine ([`KineticEngine`]): nearest-neighbour, exchange
+/// shells or dipolar.
+pub fn track_monopoles<'a, K: KineticEngine<'a>>(
+    engine: &mut K,
     duration_seconds: f64,
     sample_interval_seconds: f64,
     execution: Execution,
@@ -652,7 +654,7 @@ pub fn render_cluster_svg(
 mod tests {
     use super::*;
     use crate::control::ignore_progress;
-    use crate::dynamics::{AcceptanceRule, NearestNeighbourFlipEnergy};
+    use crate::dynamics::{AcceptanceRule, Kinetics, NearestNeighbourFlipEnergy};
     use crate::gating::test_support::random_ice_state;
     use crate::hamiltonian::{charge, NearestNeighbourIce};
     use crate::rng::RngStreams;

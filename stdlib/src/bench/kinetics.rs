@@ -2,7 +2,9 @@
 
 use super::BenchRecord;
 use crate::control::Interrupt;
-use crate::dynamics::{AcceptanceRule, Execution, Kinetics, NearestNeighbourFlipEnergy};
+use crate::dynamics::{
+    AcceptanceRule, Execution, KineticEngine, Kinetics, NearestNeighbourFlipEnergy,
+};
 use crate::gating::{AttemptTimes, SlowGate, DEFAULT_SLOW_RATIO};
 use crate::hamiltonian::NearestNeighbourIce;
 use crate::lattice::Pyrochlore;

@@ -1,0 +1,483 @@
+//! Complete kinetics runs: a model, a protocol (evolve, field quench,
+//! temperature step), preparation, and a recording on a uniform time grid,
+//! for every Hamiltonian the equilibrium engine knows.
+//!
+//! The model picks the engine: the nearest-neighbour model and exchange
+//! shells have discrete flip energies and run on [`Kinetics`] (attempt-based
+//! or the n-fold way); models with the dipolar term run on
+//! [`DipolarKinetics`] (attempt-based or thinning). With no execution given,
+//! [`choose_execution`] picks one from the starting state and says why.
+
+use super::{
+    choose_execution, sample_count, unit, AcceptanceRule, DipolarGating, DipolarKinetics,
+    ExchangeFlipEnergy, Execution, KineticEngine, Kinetics, KineticsError,
+    NearestNeighbourFlipEnergy, Trajectory, ZeemanField,
+};
+use crate::control::{Interrupt, ProgressFn};
+use crate::couplings::CouplingTable;
+use crate::engine::{FlipRule, LocalFieldSampler};
+use crate::ewald::{DipolarInteraction, DEFAULT_EWALD_ACCURACY};
+use crate::exchange::ExchangeCouplings;
+use crate::gating::{AttemptTimes, TransverseRateLaw};
+use crate::hamiltonian::NearestNeighbourIce;
+use crate::lattice::Pyrochlore;
+use crate::metropolis::{initial_configuration, NearestNeighbourMetropolis, Start};
+use crate::rng::{RngStreams, SpinRng};
+use serde::{Deserialize, Serialize};
+
+/// What is done before the recording starts at t = 0.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub enum Protocol {
+    /// Record at the run temperature, with the run's field (if any) on.
+    Evolve,
+    /// Evolve `preparation_seconds` with the field on, switch it off at
+    /// t = 0 and record the decay.
+    FieldQuench {
+        /// Time in the field before the switch (s).
+        preparation_seconds: f64,
+    },
+    /// Evolve `preparation_seconds` at `initial_temperature_kelvin`, step
+    /// to the run temperature at t = 0 and record.
+    TemperatureStep {
+        /// Temperature before the step (K).
+        initial_temperature_kelvin: f64,
+        /// Time at the initial temperature (s).
+        preparation_seconds: f64,
+    },
+}
+
+/// The Hamiltonian of a kinetics run (the field is given separately).
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub enum KineticsModel {
+    /// `J_eff Σ σσ` over nearest neighbours.
+    NearestNeighbour(NearestNeighbourIce),
+    /// Exchange shells J1, J2, J3, J3'.
+    Exchange(ExchangeCouplings),
+    /// The Ewald-summed dipolar term, with optional exchange shells.
+    Dipolar {
+        /// Exchange shells beside the dipolar term.
+        exchange: Option<ExchangeCouplings>,
+        /// D (K).
+        d_kelvin: f64,
+        /// Relative accuracy of the Ewald sums.
+        ewald_accuracy: f64,
+        /// The transverse-field what-if: attempt times from the magnitude of
+        /// the full dipolar field normal to each easy axis (`None`: the
+        /// six-neighbour classes of `attempt_times`).
+        transverse: Option<TransverseRateLaw>,
+    },
+}
+
+impl KineticsModel {
+    /// The dipolar model at the default Ewald accuracy, six-neighbour gates.
+    pub fn dipolar(exchange: Option<ExchangeCouplings>, d_kelvin: f64) -> Self {
+        KineticsModel::Dipolar {
+            exchange,
+            d_kelvin,
+            ewald_accuracy: DEFAULT_EWALD_ACCURACY,
+            transverse: None,
+        }
+    }
+}
+
+/// A complete kinetics run.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct KineticsSettings {
+    /// L.
+    pub cells_per_side: usize,
+    /// The Hamiltonian.
+    pub model: KineticsModel,
+    /// Optional uniform field (on throughout for `Evolve`, switched off at
+    /// t = 0 for `FieldQuench`).
+    pub field: Option<ZeemanField>,
+    /// Temperature of the recording (K).
+    pub temperature_kelvin: f64,
+    /// Acceptance rule.
+    pub rule: AcceptanceRule,
+    /// Attempt time per gate class (the rate law of the transverse what-if
+    /// replaces it when given).
+    pub attempt_times: AttemptTimes,
+    /// Execution; `None` lets [`choose_execution`] pick from the state at t = 0.
+    pub execution: Option<Execution>,
+    /// Protocol.
+    pub protocol: Protocol,
+    /// Initial configuration.
+    pub start: Start,
+    /// Equilibrium Metropolis sweeps (zero field) at the starting
+    /// temperature before the protocol.
+    pub equilibration_sweeps: u64,
+    /// Length of the recording (s).
+    pub duration_seconds: f64,
+    /// Grid spacing (s).
+    pub sample_interval_seconds: f64,
+    /// Projection axis of M (default: the field direction, else [0, 0, 1]).
+    pub projection_axis: Option<[f64; 3]>,
+    /// Seed.
+    pub seed: u64,
+}
+
+/// Settings and trajectory of a finished (or interrupted) run.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct KineticsResult {
+    /// What was asked.
+    pub settings: KineticsSettings,
+    /// What was recorded.
+    pub trajectory: Trajectory,
+    /// Which execution ran and why (chosen or as asked).
+    pub execution_reason: String,
+}
+
+/// Everything checked before any work, shared by all engines.
+struct Plan {
+    temperature_kelvin: f64,
+    start_temperature_kelvin: f64,
+    preparation_seconds: f64,
+    quench: bool,
+    axis: [f64; 3],
+}
+
+fn plan(settings: &KineticsSettings) -> Result<Plan, KineticsError> {
+    sample_count(settings.duration_seconds, settings.sample_interval_seconds)?;
+    let t = settings.temperature_kelvin;
+    if !(t >= 0.0 && t.is_finite()) {
+        return Err(KineticsError::InvalidTemperature(t));
+    }
+    if let Some(f) = &settings.field {
+        f.sublattice_energy_kelvin()
+            .ok_or(KineticsError::InvalidField)?;
+    }
+    let axis = match (settings.projection_axis, &settings.field) {
+        (Some(a), _) => a,
+        (None, Some(f)) => f.unit_direction().ok_or(KineticsError::InvalidField)?,
+        (None, None) => [0.0, 0.0, 1.0],
+    };
+    unit(axis).ok_or(KineticsError::InvalidProjectionAxis)?;
+    let (start_temperature_kelvin, preparation_seconds) = match &settings.protocol {
+        Protocol::Evolve => (t, 0.0),
+        Protocol::FieldQuench {
+            preparation_seconds,
+        } => {
+            if settings.field.is_none() {
+                return Err(KineticsError::MissingField);
+            }
+            (t, *preparation_seconds)
+        }
+        Protocol::TemperatureStep {
+            initial_temperature_kelvin,
+            preparation_seconds,
+        } => (*initial_temperature_kelvin, *preparation_seconds),
+    };
+    if !(start_temperature_kelvin >= 0.0 && start_temperature_kelvin.is_finite()) {
+        return Err(KineticsError::InvalidTemperature(start_temperature_kelvin));
+    }
+    if !(preparation_seconds >= 0.0 && preparation_seconds.is_finite()) {
+        return Err(KineticsError::InvalidDuration(preparation_seconds));
+    }
+    settings.attempt_times.validate()?;
+    Ok(Plan {
+        temperature_kelvin: t,
+        start_temperature_kelvin,
+        preparation_seconds,
+        quench: matches!(settings.protocol, Protocol::FieldQuench { .. }),
+        axis,
+    })
+}
+
+/// The pair-coupling table of a coupling-table model (no single-spin terms).
+fn pair_table(lat: &Pyrochlore, model: &KineticsModel) -> Result<CouplingTable, KineticsError> {
+    let mut table = CouplingTable::zero(lat).map_err(KineticsError::Couplings)?;
+    match model {
+        KineticsModel::NearestNeighbour(m) => {
+            ExchangeCouplings::nearest_neighbour(
+                m.j_eff_kelvin,
+                crate::exchange::CouplingConvention::IsingPseudospins,
+            )
+            .add_to(lat, &mut table)
+            .map_err(KineticsError::Couplings)?;
+        }
+        KineticsModel::Exchange(c) => c
+            .add_to(lat, &mut table)
+            .map_err(KineticsError::Couplings)?,
+        KineticsModel::Dipolar {
+            exchange,
+            d_kelvin,
+            ewald_accuracy,
+            ..
+        } => {
+            if let Some(c) = exchange {
+                c.add_to(lat, &mut table)
+                    .map_err(KineticsError::Couplings)?;
+            }
+            DipolarInteraction {
+                d_kelvin: *d_kelvin,
+                accuracy: *ewald_accuracy,
+            }
+            .add_to(lat, &mut table)
+            .map_err(KineticsError::Couplings)?;
+        }
+    }
+    Ok(table)
+}
+
+/// The starting configuration after `equilibration_sweeps` zero-field
+/// Metropolis sweeps at the starting temperature; `None` if interrupted.
+fn prepared_configuration(
+    lat: &Pyrochlore,
+    settings: &KineticsSettings,
+    table: Option<&CouplingTable>,
+    start_temperature_kelvin: f64,
+    streams: &RngStreams,
+    interrupt: &Interrupt,
+) -> Result<(Vec<i8>, bool), KineticsError> {
+    let mut start_rng = streams.stream(0);
+    let sigma = initial_configuration(lat, settings.start, &mut start_rng);
+    if settings.equilibration_sweeps == 0 {
+        return Ok((sigma, false));
+    }
+    let sweeps = settings.equilibration_sweeps;
+    match (&settings.model, table) {
+        (KineticsModel::NearestNeighbour(model), _) => {
+            let mut eq = NearestNeighbourMetropolis::from_configuration(
+                lat,
+                model,
+                start_temperature_kelvin,
+                sigma,
+                streams.stream(1),
+            )
+            .expect("initial_configuration has one ±1 entry per spin");
+            for k in 0..sweeps {
+                if k % 64 == 0 && interrupt.is_requested() {
+                    return Ok((eq.sigma().to_vec(), true));
+                }
+                eq.sweep();
+            }
+            Ok((eq.sigma().to_vec(), false))
+        }
+        (_, Some(table)) => {
+            let mut eq = LocalFieldSampler::new(
+                lat,
+                table,
+                start_temperature_kelvin,
+                FlipRule::Metropolis,
+                sigma,
+                streams.stream(1),
+            )
+            .expect("table and configuration are built for this lattice");
+            // Dense tables cost O(N) per accepted flip: poll every sweep.
+            for _ in 0..sweeps {
+                if interrupt.is_requested() {
+                    return Ok((eq.sigma().to_vec(), true));
+                }
+                eq.sweep();
+            }
+            Ok((eq.sigma().to_vec(), false))
+        }
+        (_, None) => unreachable!("coupling-table models build their table first"),
+    }
+}
+
+/// Run a kinetics protocol (validates everything first).
+pub fn run_kinetics(
+    settings: &KineticsSettings,
+    interrupt: &Interrupt,
+    progress: ProgressFn<'_>,
+) -> Result<KineticsResult, KineticsError> {
+    let lat = Pyrochlore::new(settings.cells_per_side).map_err(KineticsError::Lattice)?;
+    let plan = plan(settings)?;
+    let streams = RngStreams::new(settings.seed);
+    let field = settings.field.as_ref();
+    let engine_rng = streams.stream(2);
+    let (trajectory, execution_reason) = match &settings.model {
+        KineticsModel::NearestNeighbour(model) => {
+            let with_field =
+                NearestNeighbourFlipEnergy::new(model, field).ok_or(KineticsError::InvalidField)?;
+            let zero_field =
+                NearestNeighbourFlipEnergy::new(model, None).ok_or(KineticsError::InvalidField)?;
+            let (sigma, interrupted) = prepared_configuration(
+                &lat,
+                settings,
+                None,
+                plan.start_temperature_kelvin,
+                &streams,
+                interrupt,
+            )?;
+            let mut engine = discrete_engine(&lat, with_field, sigma, settings, &plan, engine_rng)?;
+            drive(
+                &mut engine,
+                settings,
+                &plan,
+                interrupted,
+                interrupt,
+                progress,
+                |e| e.set_energy(zero_field),
+            )?
+        }
+        KineticsModel::Exchange(couplings) => {
+            let with_field = ExchangeFlipEnergy::new(&lat, couplings, field)?;
+            let zero_field = with_field.without_field();
+            let table = pair_table(&lat, &settings.model)?;
+            let (sigma, interrupted) = prepared_configuration(
+                &lat,
+                settings,
+                Some(&table),
+                plan.start_temperature_kelvin,
+                &streams,
+                interrupt,
+            )?;
+            drop(table);
+            let mut engine = discrete_engine(&lat, with_field, sigma, settings, &plan, engine_rng)?;
+            drive(
+                &mut engine,
+                settings,
+                &plan,
+                interrupted,
+                interrupt,
+                progress,
+                |e| e.set_energy(zero_field),
+            )?
+        }
+        KineticsModel::Dipolar {
+            d_kelvin,
+            ewald_accuracy,
+            transverse,
+            ..
+        } => {
+            let table = pair_table(&lat, &settings.model)?;
+            let field_tables = match transverse {
+                Some(_) => Some(
+                    DipolarInteraction {
+                        d_kelvin: *d_kelvin,
+                        accuracy: *ewald_accuracy,
+                    }
+                    .field_tables(&lat)
+                    .map_err(KineticsError::Couplings)?,
+                ),
+                None => None,
+            };
+            let gating = match (transverse, &field_tables) {
+                (Some(law), Some(tables)) => DipolarGating::FullDipolarSum {
+                    field_tables: tables,
+                    unit_kelvin: super::nearest_neighbour_transverse_field_kelvin(&lat, *d_kelvin),
+                    law: law.clone(),
+                },
+                _ => DipolarGating::NeighbourClasses(settings.attempt_times.clone()),
+            };
+            let single = |f: Option<&ZeemanField>| -> Result<[f64; 4], KineticsError> {
+                match f {
+                    None => Ok([0.0; 4]),
+                    Some(f) => Ok(f
+                        .sublattice_energy_kelvin()
+                        .ok_or(KineticsError::InvalidField)?
+                        .map(|e| -e)),
+                }
+            };
+            let (sigma, interrupted) = prepared_configuration(
+                &lat,
+                settings,
+                Some(&table),
+                plan.start_temperature_kelvin,
+                &streams,
+                interrupt,
+            )?;
+            let mut engine = DipolarKinetics::new(
+                &lat,
+                &table,
+                single(field)?,
+                gating,
+                sigma,
+                settings.rule,
+                plan.start_temperature_kelvin,
+                engine_rng,
+            )?;
+            drive(
+                &mut engine,
+                settings,
+                &plan,
+                interrupted,
+                interrupt,
+                progress,
+                |e| e.set_single_spin_kelvin([0.0; 4]),
+            )?
+        }
+    };
+    Ok(KineticsResult {
+        settings: settings.clone(),
+        trajectory,
+        execution_reason,
+    })
+}
+
+fn discrete_engine<'a, E: super::DiscreteFlipEnergy>(
+    lat: &'a Pyrochlore,
+    energy: E,
+    sigma: Vec<i8>,
+    settings: &KineticsSettings,
+    plan: &Plan,
+    rng: SpinRng,
+) -> Result<Kinetics<'a, E>, KineticsError> {
+    Kinetics::new(
+        lat,
+        energy,
+        sigma,
+        settings.rule,
+        plan.start_temperature_kelvin,
+        settings.attempt_times.clone(),
+        rng,
+    )
+}
+
+/// Preparation, switch at t = 0, recording: the same for every engine.
+#[allow(clippy::too_many_arguments)]
+fn drive<'a, K: KineticEngine<'a>>(
+    engine: &mut K,
+    settings: &KineticsSettings,
+    plan: &Plan,
+    mut interrupted: bool,
+    interrupt: &Interrupt,
+    progress: ProgressFn<'_>,
+    switch_field_off: impl FnOnce(&mut K),
+) -> Result<(Trajectory, String), KineticsError> {
+    let (execution, reason) = match settings.execution {
+        Some(e) => (
+            e,
+            match e {
+                Execution::AttemptBased => "attempt-based (as asked)".to_string(),
+                Execution::RejectionFree => "rejection-free (as asked)".to_string(),
+            },
+        ),
+        None => choose_execution(engine),
+    };
+    if !interrupted && plan.preparation_seconds > 0.0 {
+        interrupted = !engine.run_for(plan.preparation_seconds, execution, interrupt)?;
+    }
+    if plan.quench {
+        switch_field_off(engine);
+    }
+    engine.set_temperature(plan.temperature_kelvin)?;
+    engine.set_time_seconds(0.0);
+    let mut trajectory = if interrupted {
+        let mut tr = engine.record(
+            0.0,
+            settings.sample_interval_seconds,
+            execution,
+            plan.axis,
+            &Interrupt::new(),
+            progress,
+            &mut (),
+        )?;
+        tr.interrupted = true;
+        tr
+    } else {
+        engine.record(
+            settings.duration_seconds,
+            settings.sample_interval_seconds,
+            execution,
+            plan.axis,
+            interrupt,
+            progress,
+            &mut (),
+        )?
+    };
+    trajectory.temperature_kelvin = plan.temperature_kelvin;
+    Ok((trajectory, reason))
+}
