@@ -102,9 +102,10 @@ fn free_spins_under_metropolis_decorrelate_as_exp_minus_two_t_over_tau0() {
     // Without a field the axis is [0, 0, 1]: M is Mz.
     assert_eq!(column(noise, "M"), column(noise, "Mz"));
     assert_lag_one(noise, (-1.0f64).exp());
-    // The nearest-neighbour model runs rejection-free under `execution = auto`, and says so.
+    // Free spins accept every attempt, so `execution = auto` picks attempts, and says why.
     let summary = out.streams.join("");
-    assert!(summary.contains("rejection-free"), "{summary}");
+    assert!(summary.contains("attempt-based"), "{summary}");
+    assert!(summary.contains("100.0 % of attempts"), "{summary}");
     let provenance = noise.provenance.as_ref().unwrap();
     let kinetics = provenance.kinetics.as_ref().unwrap();
     assert!(kinetics.execution.contains("auto"), "{kinetics:?}");
@@ -289,12 +290,6 @@ fn errors_point_at_the_offending_text() {
             "unknown rate-law function",
         ),
         (
-            "dynamics single_flip, attempt_time = 1 µs, transverse = dipolar",
-            "NotImplementedError",
-            "dipolar",
-            "dipolar",
-        ),
-        (
             "dynamics single_flip, attempt_time = 1 µs\nnoise = evolve for 1 s at 1 K, sample_every = 1 ns",
             "ValueError",
             "1 ns",
@@ -373,24 +368,48 @@ fn a_run_without_a_dynamics_rule_is_refused_with_help() {
 }
 
 #[test]
-fn models_the_kinetics_engine_lacks_are_refused_at_the_run() {
+fn exchange_and_dipolar_models_run_in_physical_time() {
+    // Free spins through the two other engines, against the exact e^{−2t/τ0} of
+    // Metropolis free spins (Glauber, J. Math. Phys. 4, 294 (1963)): `couplings
+    // exchange J1 = 0 K` runs the exchange-shell engine; `transverse = dipolar` with a
+    // rate law runs the local-field engine with the law applied to the dipolar h⊥ (a
+    // constant law, so the exact result still holds). Δt = τ0/2: e^{−1}.
     let mut session = Session::new();
-    let code = "lattice pyrochlore L = 1\ncouplings exchange J1 = -3.72 K\n\
-                dynamics single_flip, attempt_time = 1 µs\n\
-                noise = evolve for 10 µs at 1 K, sample_every = 1 µs";
-    let error = fails(&mut session, code);
-    assert_eq!(error.kind, "NotImplementedError");
-    assert!(
-        error.message.contains("nearest-neighbour"),
-        "{}",
-        error.message
+    let out = ok(
+        &mut session,
+        "lattice pyrochlore L = 2\ncouplings exchange J1 = 0 K\n\
+         dynamics single_flip, attempt_time = 1 µs, execution = rejection_free\n\
+         shells = evolve for 5 ms at 1 K, sample_every = 500 ns, equilibrate = 0",
     );
-    assert!(error.message.contains("exchange"), "{}", error.message);
-    assert_eq!(
-        (error.diagnostics[0].line, error.diagnostics[0].column),
-        (4, 9)
+    assert_lag_one(table(&session, "shells"), (-1.0f64).exp());
+    let summary = out.streams.join("");
+    assert!(summary.contains("n-fold way"), "{summary}");
+    let out = ok(
+        &mut session,
+        "rhai { fn one_us(h) { 1e-6 } }\n\
+         dynamics single_flip, rates = law, law = one_us, transverse = dipolar, \
+         execution = rejection_free\n\
+         whatif = evolve for 2 ms at 1 K, sample_every = 500 ns, equilibrate = 0",
     );
-    assert!(session.workspace().table("noise").is_none());
+    assert_lag_one(table(&session, "whatif"), (-1.0f64).exp());
+    let summary = out.streams.join("");
+    assert!(summary.contains("thinning"), "{summary}");
+    assert!(summary.contains("dipolar sum"), "{summary}");
+
+    // The dipolar model itself: both engines' bookkeeping, provenance and the choice
+    // of `execution = auto` reach the table.
+    ok(
+        &mut session,
+        "lattice pyrochlore L = 2\ncouplings exchange J1 = 3.72 K\ncouplings dipolar D = 1.41 K\n\
+         dynamics single_flip, attempt_time = 1 µs, execution = auto\n\
+         dip = evolve for 200 µs at 2 K, sample_every = 1 µs",
+    );
+    let dip = table(&session, "dip");
+    assert_eq!(dip.row_count(), 201);
+    let provenance = dip.provenance.as_ref().unwrap();
+    let kinetics = provenance.kinetics.as_ref().unwrap();
+    assert!(kinetics.execution.contains("auto"), "{kinetics:?}");
+    assert!(kinetics.flips > 1000, "{kinetics:?}");
 }
 
 #[test]

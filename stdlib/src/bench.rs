@@ -35,16 +35,19 @@ pub const NN_METROPOLIS_FLIPS: &str = "nn_metropolis_flips";
 pub mod analysis;
 pub use analysis::{PERCOLATION_SWEEP, WELCH_SAMPLES};
 pub mod kinetics;
-pub use kinetics::{KINETICS_GATED_EVENTS, KINETICS_REJECTION_FREE_SPEEDUP};
+pub use kinetics::{
+    KINETICS_DIPOLAR_FLIPS, KINETICS_GATED_EVENTS, KINETICS_REJECTION_FREE_SPEEDUP,
+};
 pub mod equilibrium;
 pub use equilibrium::{
     DIPOLAR_FIELD_UPDATES, DIPOLAR_METROPOLIS_ATTEMPTS, DIPOLAR_TABLE_BYTES, LOOP_MOVES,
 };
 
-const NAMES: [&str; 9] = [
+const NAMES: [&str; 10] = [
     NN_METROPOLIS_FLIPS,
     KINETICS_REJECTION_FREE_SPEEDUP,
     KINETICS_GATED_EVENTS,
+    KINETICS_DIPOLAR_FLIPS,
     DIPOLAR_METROPOLIS_ATTEMPTS,
     DIPOLAR_FIELD_UPDATES,
     DIPOLAR_TABLE_BYTES,
@@ -73,6 +76,7 @@ pub fn run(name: &str, interrupt: &Interrupt) -> Option<Vec<BenchRecord>> {
             &kinetics::KineticsBench::default(),
             interrupt,
         )]),
+        KINETICS_DIPOLAR_FLIPS => Some(vec![kinetics::kinetics_dipolar_flips(interrupt)]),
         DIPOLAR_METROPOLIS_ATTEMPTS | DIPOLAR_FIELD_UPDATES | DIPOLAR_TABLE_BYTES | LOOP_MOVES => {
             equilibrium::run(name, &equilibrium::EquilibriumBench::default(), interrupt)
         }

@@ -1227,6 +1227,7 @@ mod tests {
             temperature_kelvin: 1.5,
             rule: AcceptanceRule::Metropolis,
             attempt_times: AttemptTimes::uniform(1e-3).unwrap(),
+            transverse_from_dipolar_sum: None,
             execution: Some(Execution::RejectionFree),
             protocol: Protocol::FieldQuench {
                 preparation_seconds: 0.2,
@@ -1270,6 +1271,7 @@ mod tests {
             temperature_kelvin: 0.6,
             rule: AcceptanceRule::Glauber,
             attempt_times: AttemptTimes::uniform(1e-3).unwrap(),
+            transverse_from_dipolar_sum: None,
             execution: Some(Execution::AttemptBased),
             protocol: Protocol::TemperatureStep {
                 initial_temperature_kelvin: 10.0,

@@ -413,6 +413,12 @@ impl TransverseRateLaw {
         })
     }
 
+    /// `self` if [`Self::validate`] accepts it.
+    pub fn validate_into(self) -> Result<Self, GatingError> {
+        self.validate()?;
+        Ok(self)
+    }
+
     /// Check every attempt time (positive or +∞) and that something can move.
     pub fn validate(&self) -> Result<(), GatingError> {
         let check = |t: f64, x: f64| {

@@ -298,6 +298,7 @@ fn relaxation_time(
             temperature_kelvin,
             rule: AcceptanceRule::Metropolis,
             attempt_times: AttemptTimes::uniform(1.0).unwrap(),
+            transverse_from_dipolar_sum: None,
             execution: Some(execution),
             protocol: Protocol::Evolve,
             start: Start::Random,
@@ -429,6 +430,7 @@ fn auto_execution_says_which_and_the_dipolar_what_if_gates_flips() {
         temperature_kelvin: 1.2,
         rule: AcceptanceRule::Metropolis,
         attempt_times: AttemptTimes::uniform(1.0).unwrap(),
+        transverse_from_dipolar_sum: None,
         execution: None,
         protocol: Protocol::Evolve,
         start: Start::Random,
@@ -446,12 +448,8 @@ fn auto_execution_says_which_and_the_dipolar_what_if_gates_flips() {
         uniform.execution_reason
     );
     let mut gated = base.clone();
-    gated.model = KineticsModel::Dipolar {
-        exchange: Some(dy_like_exchange()),
-        d_kelvin: 1.41,
-        ewald_accuracy: DEFAULT_EWALD_ACCURACY,
-        transverse: Some(TransverseRateLaw::bimodal(1.0, SlowGate::Ratio(1e4)).unwrap()),
-    };
+    gated.transverse_from_dipolar_sum =
+        Some(TransverseRateLaw::bimodal(1.0, SlowGate::Ratio(1e4)).unwrap());
     let gated = run_kinetics(&gated, &Interrupt::new(), &ignore_progress).unwrap();
     let (fu, fg) = (uniform.trajectory.flips, gated.trajectory.flips);
     eprintln!(

@@ -311,16 +311,7 @@ impl Checker<'_> {
         };
         let transverse = match find("transverse") {
             Some(o) => match self.word(&o.value, "`transverse`", TRANSVERSE_SOURCES) {
-                Some(w) if w == "dipolar" => {
-                    self.push(Problem::new(
-                        ErrorKind::NotImplemented,
-                        o.value.span(),
-                        "h⊥ from the full dipolar sum (`transverse = dipolar`) is a what-if this \
-                         version's kinetics engine does not have: it gates on the six nearest \
-                         neighbours (`transverse = neighbours`)",
-                    ));
-                    None
-                }
+                Some(w) if w == "dipolar" => Some(TransverseSource::Dipolar),
                 Some(_) => Some(TransverseSource::Neighbours),
                 None => None,
             },

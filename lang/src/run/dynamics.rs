@@ -12,10 +12,12 @@ use std::time::{Duration, Instant};
 
 use icefield_stdlib::control::{Interrupt, Progress};
 use icefield_stdlib::dynamics::{
-    run_kinetics, Execution, KineticsResult, KineticsSettings, Protocol,
+    run_kinetics, Execution, KineticsModel, KineticsResult, KineticsSettings, Protocol,
     ZeemanField as KineticsField,
 };
-use icefield_stdlib::gating::{AttemptTimes, GATE_CLASS_COUNT, GATE_CLASS_MAGNITUDES};
+use icefield_stdlib::gating::{
+    AttemptTimes, TransverseRateLaw, GATE_CLASS_COUNT, GATE_CLASS_MAGNITUDES,
+};
 use icefield_stdlib::hamiltonian::NearestNeighbourIce;
 use icefield_stdlib::metropolis::Start;
 
@@ -28,8 +30,8 @@ use crate::check::StartState;
 use crate::diagnostic::{CellError, ErrorKind};
 use crate::units::{format_number, with_unit};
 use crate::workspace::{
-    format_seconds, Column, ExecutionChoice, KineticsProvenance, Model, Provenance, Table,
-    TransverseSource, Value, DEFAULT_SEED,
+    format_seconds, Column, CouplingsDecl, DynamicsDecl, ExecutionChoice, KineticsProvenance,
+    Model, Provenance, Table, TransverseSource, Value, DEFAULT_SEED,
 };
 use crate::Output;
 
@@ -41,6 +43,11 @@ pub const PROGRESS_DETAIL_SEPARATOR: &str = " — ";
 
 /// The rhai variable a rate law is called with (|h⊥| in units of |g|).
 const RATE_LAW_ARGUMENT: &str = "h_over_g";
+
+/// Grid of the dipolar what-if's tabulated rate law: x from 0 to 8 (twice the largest
+/// six-neighbour magnitude, 4; beyond it the last value holds) in 256 steps.
+const DIPOLAR_LAW_X_MAX: f64 = 8.0;
+const DIPOLAR_LAW_POINTS: usize = 257;
 
 impl Runner<'_> {
     pub(super) fn run_dynamics(
@@ -86,14 +93,32 @@ impl Runner<'_> {
         span: Span,
         emit: &mut dyn FnMut(Output),
     ) -> Result<AttemptTimes, CellError> {
+        let values = self.rate_law_values(function, span, &GATE_CLASS_MAGNITUDES, emit)?;
+        let mut table = [0.0; GATE_CLASS_COUNT];
+        table.copy_from_slice(&values);
+        AttemptTimes::from_table(table).map_err(|error| {
+            error_at(
+                self.source,
+                ErrorKind::Value,
+                span,
+                format!("the rate law `{function}`: {error}"),
+            )
+        })
+    }
+
+    /// The rate law's attempt times (s) at `magnitudes` of |h⊥|/|g|, each checked.
+    fn rate_law_values(
+        &mut self,
+        function: &str,
+        span: Span,
+        magnitudes: &[f64],
+        emit: &mut dyn FnMut(Output),
+    ) -> Result<Vec<f64>, CellError> {
         let expression = format!("{function}({RATE_LAW_ARGUMENT})");
-        let inputs = [(
-            RATE_LAW_ARGUMENT.to_string(),
-            GATE_CLASS_MAGNITUDES.to_vec(),
-        )];
+        let inputs = [(RATE_LAW_ARGUMENT.to_string(), magnitudes.to_vec())];
         let result = self
             .script
-            .evaluate_rows(&expression, &inputs, GATE_CLASS_COUNT);
+            .evaluate_rows(&expression, &inputs, magnitudes.len());
         self.flush_prints(emit);
         let values = result.map_err(|failure| {
             let kind = if failure.interrupted {
@@ -108,32 +133,64 @@ impl Runner<'_> {
                 format!("the rate law `{function}` failed: {}", failure.message),
             )
         })?;
-        let mut table = [0.0; GATE_CLASS_COUNT];
-        for (class, (&magnitude, &seconds)) in GATE_CLASS_MAGNITUDES.iter().zip(&values).enumerate()
-        {
+        for (&magnitude, &seconds) in magnitudes.iter().zip(&values) {
             if seconds.is_nan() || seconds <= 0.0 {
+                let class = GATE_CLASS_MAGNITUDES
+                    .iter()
+                    .position(|&m| m == magnitude)
+                    .map(|c| format!(" (gate class {c})"))
+                    .unwrap_or_default();
                 return Err(error_at(
                     self.source,
                     ErrorKind::Value,
                     span,
                     format!(
-                        "the rate law `{function}` gives {} for |h⊥| = {} |g| (gate class \
-                         {class}); an attempt time must be a positive number of seconds",
+                        "the rate law `{function}` gives {} for |h⊥| = {} |g|{class}; an \
+                         attempt time must be a positive number of seconds",
                         format_number(seconds),
                         format_number((magnitude * 1e6).round() / 1e6)
                     ),
                 ));
             }
-            table[class] = seconds;
         }
-        AttemptTimes::from_table(table).map_err(|error| {
-            error_at(
-                self.source,
-                ErrorKind::Value,
-                span,
-                format!("the rate law `{function}`: {error}"),
-            )
-        })
+        Ok(values)
+    }
+
+    /// The rate law of the dipolar transverse-field what-if: a declared rhai law is
+    /// tabulated at [`DIPOLAR_LAW_POINTS`] points over `0 ≤ x ≤` [`DIPOLAR_LAW_X_MAX`]
+    /// (x = |h⊥| in units of one nearest neighbour's transverse field, which is what
+    /// |h⊥|/|g| means for the six-neighbour classes); the bimodal preset becomes a step
+    /// at x = 1, half-way between the closed class (0) and the smallest open one (2).
+    /// `None` for uniform rates, where h⊥ does not matter.
+    fn transverse_rate_law(
+        &mut self,
+        dynamics: &DynamicsDecl,
+        keyword: Span,
+        emit: &mut dyn FnMut(Output),
+    ) -> Result<Option<TransverseRateLaw>, CellError> {
+        let fail = |message: String| error_at(self.source, ErrorKind::Value, keyword, message);
+        if let Some(function) = &dynamics.rate_law {
+            let grid: Vec<f64> = (0..DIPOLAR_LAW_POINTS)
+                .map(|k| DIPOLAR_LAW_X_MAX * k as f64 / (DIPOLAR_LAW_POINTS - 1) as f64)
+                .collect();
+            let times = self.rate_law_values(function, keyword, &grid, emit)?;
+            return TransverseRateLaw::Table {
+                x_max: DIPOLAR_LAW_X_MAX,
+                attempt_time_seconds: times,
+            }
+            .validate_into()
+            .map(Some)
+            .map_err(|e| fail(format!("the rate law `{function}`: {e}")));
+        }
+        let t = dynamics.attempt_times.attempt_time_seconds;
+        if dynamics.attempt_times.is_uniform() {
+            return Ok(None);
+        }
+        Ok(Some(TransverseRateLaw::Step {
+            threshold: icefield_stdlib::gating::CONTINUOUS_GATE_THRESHOLD,
+            fast_seconds: t[1],
+            slow_seconds: t[0],
+        }))
     }
 
     fn run_protocol(
@@ -175,29 +232,22 @@ impl Runner<'_> {
                 };
             }
         }
-        if !couplings.is_nearest() {
-            let terms: Vec<&str> = [
-                couplings.exchange.is_some().then_some("exchange"),
-                couplings.dipolar_kelvin.is_some().then_some("dipolar"),
-            ]
-            .into_iter()
-            .flatten()
-            .collect();
-            return Err(fail(
-                ErrorKind::NotImplemented,
-                format!(
-                    "physical-time runs support the nearest-neighbour model (`couplings nearest`, \
-                     with an optional `field`) in this version; the declared model has {} terms",
-                    terms.join(" and ")
-                ),
-            ));
-        }
-        if dynamics.transverse == TransverseSource::Dipolar {
-            return Err(fail(
-                ErrorKind::NotImplemented,
-                "h⊥ from the dipolar sum is not in this version's kinetics engine".to_string(),
-            ));
-        }
+        let kinetics_model = kinetics_model(couplings);
+        let mut notes = Vec::new();
+        let transverse_from_dipolar_sum = match dynamics.transverse {
+            TransverseSource::Neighbours => None,
+            TransverseSource::Dipolar => {
+                let law = self.transverse_rate_law(&dynamics, keyword, emit)?;
+                if law.is_none() {
+                    notes.push(
+                        "`transverse = dipolar` changes nothing with uniform rates: every spin \
+                         attempts every τ0 whatever its h⊥"
+                            .to_string(),
+                    );
+                }
+                law
+            }
+        };
         let mut notes = Vec::new();
         let field = match &spec.protocol {
             ProtocolKind::Quench {
@@ -229,14 +279,10 @@ impl Runner<'_> {
             }
             ProtocolKind::Evolve | ProtocolKind::Step { .. } => declared_field(model),
         };
-        let (execution, execution_text) = match dynamics.execution {
-            ExecutionChoice::Auto => (
-                Execution::RejectionFree,
-                "rejection-free (chosen by `execution = auto`: the nearest-neighbour model's \
-                 energy changes take a few discrete values)",
-            ),
-            ExecutionChoice::AttemptBased => (Execution::AttemptBased, "attempt-based"),
-            ExecutionChoice::RejectionFree => (Execution::RejectionFree, "rejection-free"),
+        let execution = match dynamics.execution {
+            ExecutionChoice::Auto => None,
+            ExecutionChoice::AttemptBased => Some(Execution::AttemptBased),
+            ExecutionChoice::RejectionFree => Some(Execution::RejectionFree),
         };
         let protocol = match &spec.protocol {
             ProtocolKind::Evolve => Protocol::Evolve,
@@ -256,13 +302,12 @@ impl Runner<'_> {
         };
         let settings = KineticsSettings {
             cells_per_side: lattice.cells_per_side,
-            model: NearestNeighbourIce {
-                j_eff_kelvin: couplings.j_eff_kelvin,
-            },
+            model: kinetics_model,
             field,
             temperature_kelvin: spec.temperature_kelvin,
             rule: dynamics.acceptance,
             attempt_times: dynamics.attempt_times.clone(),
+            transverse_from_dipolar_sum,
             execution,
             protocol,
             start: start_state(spec.start),
@@ -275,6 +320,7 @@ impl Runner<'_> {
         let started = Instant::now();
         let result = run_with_time_left(&settings, spec, self.interrupt, emit)
             .map_err(|message| fail(ErrorKind::Runtime, message))?;
+        let execution_text = execution_description(dynamics.execution, &result);
         let provenance = Provenance {
             source: spec.description.clone(),
             lattice: lattice.describe(),
@@ -298,7 +344,7 @@ impl Runner<'_> {
             kinetics: Some(KineticsProvenance {
                 protocol: spec.description.clone(),
                 dynamics: dynamics.describe(),
-                execution: execution_text.to_string(),
+                execution: execution_text.clone(),
                 temperature_kelvin: spec.temperature_kelvin,
                 duration_seconds: spec.duration_seconds,
                 sample_interval_seconds: spec.sample_interval_seconds,
@@ -341,6 +387,42 @@ impl Runner<'_> {
             ),
         });
         Ok(())
+    }
+}
+
+/// The Hamiltonian of a physical-time run: the nearest-neighbour model runs on the
+/// discrete engine with J_eff, exchange shells on the discrete engine with shell-count
+/// classes, anything with the dipolar term on the local-field engine.
+fn kinetics_model(couplings: &CouplingsDecl) -> KineticsModel {
+    match (&couplings.exchange, couplings.dipolar_kelvin) {
+        (_, Some(d_kelvin)) => KineticsModel::dipolar(couplings.exchange, d_kelvin),
+        (Some(exchange), None) => KineticsModel::Exchange(*exchange),
+        (None, None) => KineticsModel::NearestNeighbour(NearestNeighbourIce {
+            j_eff_kelvin: couplings.j_eff_kelvin,
+        }),
+    }
+}
+
+/// The execution that ran, in words (with the reason when `execution = auto` chose).
+fn execution_description(choice: ExecutionChoice, result: &KineticsResult) -> String {
+    let engine = match (
+        &result.settings.model,
+        &result.settings.transverse_from_dipolar_sum,
+    ) {
+        (KineticsModel::Dipolar { .. }, _) | (_, Some(_)) => "thinning over rate bins",
+        _ => "n-fold way",
+    };
+    match (choice, result.trajectory.execution) {
+        (ExecutionChoice::Auto, _) => format!(
+            "{} (chosen by `execution = auto`{})",
+            result.execution_reason,
+            match result.trajectory.execution {
+                Execution::RejectionFree => format!("; {engine}"),
+                Execution::AttemptBased => String::new(),
+            }
+        ),
+        (_, Execution::AttemptBased) => "attempt-based".to_string(),
+        (_, Execution::RejectionFree) => format!("rejection-free ({engine})"),
     }
 }
 

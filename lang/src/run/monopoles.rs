@@ -14,7 +14,7 @@ use std::time::Instant;
 use icefield_stdlib::control::Progress;
 use icefield_stdlib::couplings::CouplingTable;
 use icefield_stdlib::dynamics::{
-    AcceptanceRule, Execution, Kinetics, NearestNeighbourFlipEnergy, ZeemanField,
+    AcceptanceRule, Execution, KineticEngine, Kinetics, NearestNeighbourFlipEnergy, ZeemanField,
 };
 use icefield_stdlib::engine::{FlipRule, LocalFieldSampler};
 use icefield_stdlib::exchange::{CouplingConvention, ExchangeCouplings};

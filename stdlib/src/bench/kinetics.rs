@@ -16,6 +16,9 @@ use std::time::{Duration, Instant};
 pub const KINETICS_REJECTION_FREE_SPEEDUP: &str = "kinetics_rejection_free_speedup";
 /// Rejection-free events per second with the bimodal gated rule.
 pub const KINETICS_GATED_EVENTS: &str = "kinetics_gated_events";
+/// Flips per second of the dipolar engine (thinning vs attempts, and the
+/// transverse-field what-if).
+pub const KINETICS_DIPOLAR_FLIPS: &str = "kinetics_dipolar_flips";
 
 /// Parameters shared by the kinetics benchmarks.
 #[derive(Clone, Debug)]
@@ -84,8 +87,8 @@ impl CpuClock {
 /// Simulated seconds and flips of `execution` over about `budget` of CPU
 /// time, advancing in chunks of `step_tau0` attempt times (one clock read
 /// per chunk); returns (simulated s, flips, CPU s, interrupted).
-fn simulate_for(
-    engine: &mut Kinetics<'_, NearestNeighbourFlipEnergy>,
+fn simulate_for<'a, K: KineticEngine<'a>>(
+    engine: &mut K,
     execution: Execution,
     budget: Duration,
     step_tau0: f64,
@@ -319,6 +322,134 @@ pub fn kinetics_gated_events(params: &KineticsBench, interrupt: &Interrupt) -> B
         bench: KINETICS_GATED_EVENTS.into(),
         value: events,
         unit: "events/s".into(),
+        extra,
+    }
+}
+
+/// The [`KINETICS_DIPOLAR_FLIPS`] workload: the dipolar model of L = 4
+/// (D = 1.41 K, J1 = 3.72 K in the vector convention; den Hertog & Gingras,
+/// Phys. Rev. Lett. 84, 3430 (2000), memory) at 1 K from an equilibrated
+/// state, one thread. Value: flips per CPU second with thinning; beside it
+/// the attempt-based execution measured in alternating rounds (simulated
+/// time ratio) and the transverse-field what-if with the bimodal step.
+pub fn kinetics_dipolar_flips(interrupt: &Interrupt) -> BenchRecord {
+    use crate::dynamics::{
+        nearest_neighbour_transverse_field_kelvin, DipolarGating, DipolarKinetics,
+    };
+    use crate::engine::{FlipRule, LocalFieldSampler};
+    use crate::ewald::{DipolarInteraction, DEFAULT_EWALD_ACCURACY};
+    use crate::exchange::{CouplingConvention, ExchangeCouplings};
+    use crate::gating::TransverseRateLaw;
+    let (l, t, d) = (4usize, 1.0, 1.41);
+    let lat = Pyrochlore::new(l).expect("L = 4");
+    let mut table = crate::couplings::CouplingTable::zero(&lat).expect("small table");
+    ExchangeCouplings::nearest_neighbour(3.72, CouplingConvention::VectorSpins)
+        .add_to(&lat, &mut table)
+        .expect("valid exchange");
+    let dipolar = DipolarInteraction {
+        d_kelvin: d,
+        accuracy: DEFAULT_EWALD_ACCURACY,
+    };
+    dipolar
+        .add_to(&lat, &mut table)
+        .expect("valid dipolar term");
+    let field_tables = dipolar.field_tables(&lat).expect("valid dipolar term");
+    let streams = RngStreams::new(5);
+    let sigma = initial_configuration(&lat, Start::IceState, &mut streams.stream(0));
+    let mut eq = LocalFieldSampler::new(
+        &lat,
+        &table,
+        t,
+        FlipRule::Metropolis,
+        sigma,
+        streams.stream(1),
+    )
+    .expect("matching table");
+    for _ in 0..200 {
+        if interrupt.is_requested() {
+            break;
+        }
+        eq.sweep();
+    }
+    let budget = Duration::from_millis(1500) / ROUNDS;
+    let uniform = DipolarGating::NeighbourClasses(AttemptTimes::uniform(1.0).expect("τ0 = 1 s"));
+    let mut engine = DipolarKinetics::new(
+        &lat,
+        &table,
+        [0.0; 4],
+        uniform,
+        eq.sigma().to_vec(),
+        AcceptanceRule::Metropolis,
+        t,
+        streams.stream(2),
+    )
+    .expect("valid engine");
+    let mut sums = [[0.0f64; 3]; 2];
+    let mut interrupted = false;
+    for _ in 0..ROUNDS {
+        for (slot, (execution, step)) in sums.iter_mut().zip([
+            (Execution::AttemptBased, ATTEMPT_STEP_TAU0),
+            (Execution::RejectionFree, ATTEMPT_STEP_TAU0),
+        ]) {
+            let (simulated, flips, cpu, i) =
+                simulate_for(&mut engine, execution, budget, step, interrupt);
+            slot[0] += simulated;
+            slot[1] += flips;
+            slot[2] += cpu;
+            interrupted |= i;
+        }
+    }
+    let what_if = DipolarGating::FullDipolarSum {
+        field_tables: &field_tables,
+        unit_kelvin: nearest_neighbour_transverse_field_kelvin(&lat, d),
+        law: TransverseRateLaw::bimodal(1.0, SlowGate::Ratio(DEFAULT_SLOW_RATIO))
+            .expect("valid preset"),
+    };
+    let mut gated = DipolarKinetics::new(
+        &lat,
+        &table,
+        [0.0; 4],
+        what_if,
+        eq.sigma().to_vec(),
+        AcceptanceRule::Metropolis,
+        t,
+        streams.stream(3),
+    )
+    .expect("valid engine");
+    let (_, g_flips, g_cpu, i) = simulate_for(
+        &mut gated,
+        Execution::RejectionFree,
+        budget,
+        ATTEMPT_STEP_TAU0,
+        interrupt,
+    );
+    interrupted |= i;
+    let [[a_sim, a_flips, a_cpu], [f_sim, f_flips, f_cpu]] = sums;
+    let mut extra = serde_json::Map::new();
+    extra.insert("T".into(), t.into());
+    extra.insert("L".into(), l.into());
+    extra.insert("spins".into(), lat.spin_count().into());
+    extra.insert("D_K".into(), d.into());
+    extra.insert("threads".into(), 1.into());
+    extra.insert(
+        "attempt_based_flips_per_cpu_s".into(),
+        (a_flips / a_cpu).into(),
+    );
+    extra.insert(
+        "thinning_over_attempts_simulated_time".into(),
+        ((f_sim / f_cpu) / (a_sim / a_cpu).max(1e-30)).into(),
+    );
+    extra.insert(
+        "dipolar_transverse_what_if_flips_per_cpu_s".into(),
+        (g_flips / g_cpu).into(),
+    );
+    if interrupted {
+        extra.insert("interrupted".into(), true.into());
+    }
+    BenchRecord {
+        bench: KINETICS_DIPOLAR_FLIPS.into(),
+        value: f_flips / f_cpu,
+        unit: "flips/s".into(),
         extra,
     }
 }

@@ -61,10 +61,6 @@ pub enum KineticsModel {
         d_kelvin: f64,
         /// Relative accuracy of the Ewald sums.
         ewald_accuracy: f64,
-        /// The transverse-field what-if: attempt times from the magnitude of
-        /// the full dipolar field normal to each easy axis (`None`: the
-        /// six-neighbour classes of `attempt_times`).
-        transverse: Option<TransverseRateLaw>,
     },
 }
 
@@ -75,7 +71,6 @@ impl KineticsModel {
             exchange,
             d_kelvin,
             ewald_accuracy: DEFAULT_EWALD_ACCURACY,
-            transverse: None,
         }
     }
 }
@@ -97,6 +92,15 @@ pub struct KineticsSettings {
     /// Attempt time per gate class (the rate law of the transverse what-if
     /// replaces it when given).
     pub attempt_times: AttemptTimes,
+    /// The transverse-field what-if: attempt times from a rate law of the
+    /// magnitude of the full (Ewald-summed) dipolar field normal to each
+    /// easy axis, instead of the six-neighbour classes. Works with every
+    /// model: only the direction pattern of the dipolar field matters, since
+    /// its magnitude is measured in units of one nearest neighbour's field
+    /// (so D cancels), and the energies stay those of the model. Runs on
+    /// [`DipolarKinetics`].
+    #[serde(default)]
+    pub transverse_from_dipolar_sum: Option<TransverseRateLaw>,
     /// Execution; `None` lets [`choose_execution`] pick from the state at t = 0.
     pub execution: Option<Execution>,
     /// Protocol.
@@ -288,6 +292,9 @@ pub fn run_kinetics(
     let field = settings.field.as_ref();
     let engine_rng = streams.stream(2);
     let (trajectory, execution_reason) = match &settings.model {
+        _ if settings.transverse_from_dipolar_sum.is_some() => local_field_run(
+            &lat, settings, &plan, &streams, engine_rng, interrupt, progress,
+        )?,
         KineticsModel::NearestNeighbour(model) => {
             let with_field =
                 NearestNeighbourFlipEnergy::new(model, field).ok_or(KineticsError::InvalidField)?;
@@ -336,75 +343,87 @@ pub fn run_kinetics(
                 |e| e.set_energy(zero_field),
             )?
         }
-        KineticsModel::Dipolar {
-            d_kelvin,
-            ewald_accuracy,
-            transverse,
-            ..
-        } => {
-            let table = pair_table(&lat, &settings.model)?;
-            let field_tables = match transverse {
-                Some(_) => Some(
-                    DipolarInteraction {
-                        d_kelvin: *d_kelvin,
-                        accuracy: *ewald_accuracy,
-                    }
-                    .field_tables(&lat)
-                    .map_err(KineticsError::Couplings)?,
-                ),
-                None => None,
-            };
-            let gating = match (transverse, &field_tables) {
-                (Some(law), Some(tables)) => DipolarGating::FullDipolarSum {
-                    field_tables: tables,
-                    unit_kelvin: super::nearest_neighbour_transverse_field_kelvin(&lat, *d_kelvin),
-                    law: law.clone(),
-                },
-                _ => DipolarGating::NeighbourClasses(settings.attempt_times.clone()),
-            };
-            let single = |f: Option<&ZeemanField>| -> Result<[f64; 4], KineticsError> {
-                match f {
-                    None => Ok([0.0; 4]),
-                    Some(f) => Ok(f
-                        .sublattice_energy_kelvin()
-                        .ok_or(KineticsError::InvalidField)?
-                        .map(|e| -e)),
-                }
-            };
-            let (sigma, interrupted) = prepared_configuration(
-                &lat,
-                settings,
-                Some(&table),
-                plan.start_temperature_kelvin,
-                &streams,
-                interrupt,
-            )?;
-            let mut engine = DipolarKinetics::new(
-                &lat,
-                &table,
-                single(field)?,
-                gating,
-                sigma,
-                settings.rule,
-                plan.start_temperature_kelvin,
-                engine_rng,
-            )?;
-            drive(
-                &mut engine,
-                settings,
-                &plan,
-                interrupted,
-                interrupt,
-                progress,
-                |e| e.set_single_spin_kelvin([0.0; 4]),
-            )?
-        }
+        KineticsModel::Dipolar { .. } => local_field_run(
+            &lat, settings, &plan, &streams, engine_rng, interrupt, progress,
+        )?,
     };
     Ok(KineticsResult {
         settings: settings.clone(),
         trajectory,
         execution_reason,
     })
+}
+
+/// A run on [`DipolarKinetics`]: models with the dipolar term, and every
+/// model under the transverse-field what-if.
+fn local_field_run(
+    lat: &Pyrochlore,
+    settings: &KineticsSettings,
+    plan: &Plan,
+    streams: &RngStreams,
+    engine_rng: SpinRng,
+    interrupt: &Interrupt,
+    progress: ProgressFn<'_>,
+) -> Result<(Trajectory, String), KineticsError> {
+    let table = pair_table(lat, &settings.model)?;
+    let accuracy = match &settings.model {
+        KineticsModel::Dipolar { ewald_accuracy, .. } => *ewald_accuracy,
+        _ => DEFAULT_EWALD_ACCURACY,
+    };
+    let field_tables = match &settings.transverse_from_dipolar_sum {
+        Some(_) => Some(
+            // D = 1 K: x = |h⊥|/(one neighbour's |h⊥|) does not depend on D.
+            DipolarInteraction {
+                d_kelvin: 1.0,
+                accuracy,
+            }
+            .field_tables(lat)
+            .map_err(KineticsError::Couplings)?,
+        ),
+        None => None,
+    };
+    let gating = match (&settings.transverse_from_dipolar_sum, &field_tables) {
+        (Some(law), Some(tables)) => DipolarGating::FullDipolarSum {
+            field_tables: tables,
+            unit_kelvin: super::nearest_neighbour_transverse_field_kelvin(lat, 1.0),
+            law: law.clone(),
+        },
+        _ => DipolarGating::NeighbourClasses(settings.attempt_times.clone()),
+    };
+    let single = match &settings.field {
+        None => [0.0; 4],
+        Some(f) => f
+            .sublattice_energy_kelvin()
+            .ok_or(KineticsError::InvalidField)?
+            .map(|e| -e),
+    };
+    let (sigma, interrupted) = prepared_configuration(
+        lat,
+        settings,
+        Some(&table),
+        plan.start_temperature_kelvin,
+        streams,
+        interrupt,
+    )?;
+    let mut engine = DipolarKinetics::new(
+        lat,
+        &table,
+        single,
+        gating,
+        sigma,
+        settings.rule,
+        plan.start_temperature_kelvin,
+        engine_rng,
+    )?;
+    drive(
+        &mut engine,
+        settings,
+        plan,
+        interrupted,
+        interrupt,
+        progress,
+        |e| e.set_single_spin_kelvin([0.0; 4]),
+    )
 }
 
 fn discrete_engine<'a, E: super::DiscreteFlipEnergy>(
