@@ -411,9 +411,11 @@ pub enum ReachMode {
     /// monopole's charge onward (pointing out of the current tetrahedron for
     /// `+`, into it for `−`) and is open, both judged in the snapshot *with
     /// the incoming hop's spin flipped*. The search runs over (site, incoming
-    /// spin) states. Approximation: only the last hop's flip is applied;
-    /// earlier flips of the same path are ignored, which matters only when a
-    /// path returns next to its own trail (around a hexagon, ≥ 6 hops).
+    /// spin) states. A hop straight back through the incoming spin is not
+    /// followed (it restores the previous state). Approximation: only the
+    /// last hop's flip is applied; earlier flips of the same path are
+    /// ignored, which matters only when a path returns next to its own trail
+    /// (around a hexagon, ≥ 6 hops).
     /// Energies are not considered (in a dilute monopole gas the destinations
     /// are almost always neutral).
     PathDependent,
@@ -487,6 +489,14 @@ pub fn reachable_sites(
         let nbs = lat.diamond_neighbours(t as usize);
         for (k, &s) in lat.spins_of(t as usize).iter().enumerate() {
             let s = s as usize;
+            if mode == ReachMode::PathDependent && s as u32 == incoming {
+                // Hopping back through the incoming spin restores the state
+                // before the last hop, already searched with one hop fewer;
+                // followed as if it were a fresh hop, it would apply the
+                // incoming flip to the wrong configuration and open gates
+                // that are shut (spurious states).
+                continue;
+            }
             let passable = match mode {
                 ReachMode::StaticSnapshot => open[gate_class(lat, sigma, s) as usize],
                 ReachMode::PathDependent => {
