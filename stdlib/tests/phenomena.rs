@@ -18,8 +18,8 @@
 
 use icefield_stdlib::control::{ignore_progress, Interrupt};
 use icefield_stdlib::dynamics::{
-    run_kinetics, AcceptanceRule, Execution, Kinetics, KineticsSettings,
-    NearestNeighbourFlipEnergy, Protocol,
+    run_kinetics, AcceptanceRule, Execution, KineticEngine, Kinetics, KineticsModel,
+    KineticsSettings, NearestNeighbourFlipEnergy, Protocol,
 };
 use icefield_stdlib::fit::fit_power_law;
 use icefield_stdlib::gating::{gate_class, AttemptTimes, SlowGate, DEFAULT_SLOW_RATIO};
@@ -192,12 +192,13 @@ fn measure(label: &'static str, attempt_times: AttemptTimes, seed: u64) -> Measu
     // Lebowitz, J. Comput. Phys. 17, 10 (1975)).
     let settings = KineticsSettings {
         cells_per_side: CELLS_PER_SIDE,
-        model: model(),
+        model: KineticsModel::NearestNeighbour(model()),
         field: None,
         temperature_kelvin: TEMPERATURE_KELVIN,
         rule: AcceptanceRule::Metropolis,
         attempt_times: attempt_times.clone(),
-        execution: Execution::RejectionFree,
+        transverse_from_dipolar_sum: None,
+        execution: Some(Execution::RejectionFree),
         protocol: Protocol::Evolve,
         start: Start::Random,
         equilibration_sweeps: EQUILIBRATION_SWEEPS,
