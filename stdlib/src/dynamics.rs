@@ -56,7 +56,10 @@ mod exponential;
 mod protocol;
 mod recording;
 mod state;
-pub use dipolar::{nearest_neighbour_transverse_field_kelvin, DipolarGating, DipolarKinetics};
+pub use dipolar::{
+    nearest_neighbour_transverse_field_kelvin, DipolarGating, DipolarKinetics,
+    DIPOLAR_THINNING_BELOW_ACCEPTANCE,
+};
 pub use exchange_flips::ExchangeFlipEnergy;
 use exponential::ExponentialZiggurat;
 pub use protocol::{run_kinetics, KineticsModel, KineticsResult, KineticsSettings, Protocol};

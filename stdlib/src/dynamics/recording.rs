@@ -52,6 +52,11 @@ pub trait KineticEngine<'a> {
     /// be accepted in the current state (`Σ_i r_i τ_min / N`): how much an
     /// attempt-based execution would waste, the input of [`choose_execution`].
     fn attempt_acceptance(&self) -> f64;
+    /// Attempt acceptance below which the rejection-free execution is the
+    /// faster one for this engine (see [`choose_execution`]).
+    fn rejection_free_pays_below(&self) -> f64 {
+        REJECTION_FREE_BELOW_ACCEPTANCE
+    }
 
     /// Record `duration_seconds` of kinetics sampled every
     /// `sample_interval_seconds` (times relative to the start of the
@@ -168,14 +173,15 @@ pub const REJECTION_FREE_BELOW_ACCEPTANCE: f64 = 0.1;
 /// with the reason in words.
 pub fn choose_execution<'a, K: KineticEngine<'a>>(engine: &K) -> (Execution, String) {
     let acceptance = engine.attempt_acceptance();
-    if acceptance < REJECTION_FREE_BELOW_ACCEPTANCE {
+    let threshold = engine.rejection_free_pays_below();
+    if acceptance < threshold {
         (
             Execution::RejectionFree,
             format!(
                 "rejection-free: only {:.3} % of attempts would be accepted in the starting state \
                  (threshold {} %)",
                 100.0 * acceptance,
-                100.0 * REJECTION_FREE_BELOW_ACCEPTANCE
+                100.0 * threshold
             ),
         )
     } else {
@@ -185,7 +191,7 @@ pub fn choose_execution<'a, K: KineticEngine<'a>>(engine: &K) -> (Execution, Str
                 "attempt-based: {:.1} % of attempts would be accepted in the starting state \
                  (rejection-free pays off below {} %)",
                 100.0 * acceptance,
-                100.0 * REJECTION_FREE_BELOW_ACCEPTANCE
+                100.0 * threshold
             ),
         )
     }
