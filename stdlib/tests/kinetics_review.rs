@@ -3,7 +3,7 @@
 //! `a_rate_law_that_validate_accepts_gives_finite_rates` fails on main: a
 //! `TransverseRateLaw::Table` that `validate` accepts can panic or give NaN
 //! rates. `n_fold_way_with_strong_further_shells_samples_the_equilibrium_energy`
-//! passes on main and fails (≈ 50σ) when the n-fold way skips re-binning the
+//! passes on main and fails (≈ 40σ at 3 K) when the n-fold way skips re-binning the
 //! further-shell partners, which no test in kinetics_models.rs notices.
 
 use icefield_stdlib::gating::TransverseRateLaw;
