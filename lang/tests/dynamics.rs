@@ -484,3 +484,19 @@ fn completion_and_help_know_the_dynamics_words() {
         .unwrap();
     assert!(help.contains("once per class"), "{help}");
 }
+
+#[test]
+fn transverse_dipolar_with_uniform_rates_says_it_changes_nothing() {
+    // lang/src/run/dynamics.rs pushes this note for `transverse = dipolar` with
+    // uniform rates (every spin attempts every τ0 whatever its h⊥, physics-reference
+    // §5, derived), then shadows `notes` with a fresh vector, so the note is lost.
+    let mut session = Session::new();
+    let out = ok(
+        &mut session,
+        "lattice pyrochlore L = 1\ncouplings nearest J_eff = 1.1 K\n\
+         dynamics single_flip, attempt_time = 1 µs, transverse = dipolar\n\
+         same = evolve for 20 µs at 2 K, sample_every = 1 µs, equilibrate = 0",
+    );
+    let summary = out.streams.join("");
+    assert!(summary.contains("changes nothing"), "{summary}");
+}
