@@ -20,20 +20,22 @@
 //!   drawn with probability ∝ (members × rate), a member uniformly, and the
 //!   clock advances by an exponential variate of the total rate. Classes
 //!   with equal rates share one bucket ("rate group"; without a field the
-//!   nearest-neighbour model has at most 4 distinct ΔE rates per gate class),
-//!   and event selection scans the groups in descending-rate order, so its
-//!   cost does not grow with N; each flip moves the flipped spin and its six
-//!   neighbours between
-//!   buckets in O(1) (swap-remove with an index map).
+//!   nearest-neighbour model has at most 4 distinct Metropolis rates per gate
+//!   class, 7 with Glauber), and event selection scans the groups in
+//!   descending-rate order, so its cost does not grow with N; each flip moves
+//!   the flipped spin, its six neighbours and its further partners
+//!   ([`DiscreteFlipEnergy::further_partners`]) between buckets in O(1) each
+//!   (swap-remove with an index map).
 //!
 //! Energetics are pluggable through [`DiscreteFlipEnergy`]: any Hamiltonian
 //! whose single-flip energy changes take a finite set of values ("energy
-//! classes"), with a cache updated after every accepted flip. The
-//! nearest-neighbour model with a uniform Zeeman field is
-//! [`NearestNeighbourFlipEnergy`]. A dipolar Hamiltonian with local-field
-//! caches fits the attempt-based execution through the same trait by
-//! binning its ΔE; its exact rejection-free execution will need thinning
-//! against per-class rate bounds (physics-reference §5), which is not here.
+//! classes"), with a cache updated after every accepted flip: the
+//! nearest-neighbour model with a uniform Zeeman field
+//! ([`NearestNeighbourFlipEnergy`]) and the exchange shells J1–J3'
+//! ([`ExchangeFlipEnergy`]). Continuous energy changes (the dipolar term) run
+//! on [`DipolarKinetics`] instead, with exact thinning; both engines
+//! implement [`KineticEngine`], on which recording and monopole tracking are
+//! written once.
 //!
 //! The engine keeps tetrahedron sums (charges), per-sublattice pseudospin
 //! sums (magnetisation in O(1)), charge counts and per-spin gate classes up
@@ -58,7 +60,7 @@ mod recording;
 mod state;
 pub use dipolar::{
     nearest_neighbour_transverse_field_kelvin, DipolarGating, DipolarKinetics,
-    DIPOLAR_THINNING_BELOW_ACCEPTANCE,
+    DIPOLAR_THINNING_BELOW_ACCEPTANCE_TIMES_N,
 };
 pub use exchange_flips::ExchangeFlipEnergy;
 use exponential::ExponentialZiggurat;
@@ -892,7 +894,8 @@ pub struct Trajectory {
     pub spin_count: usize,
     /// Flips during the recording.
     pub flips: u64,
-    /// Attempts during the recording (attempt-based execution only).
+    /// Attempts (attempt-based) or thinning proposals (rejection-free on the
+    /// dipolar engine) during the recording; 0 for the n-fold way.
     pub attempts: u64,
     /// Stopped early on interrupt (the samples so far are kept).
     pub interrupted: bool,

@@ -386,6 +386,10 @@ impl DipolarInteraction {
     /// [`Self::add_to`]; the rest is the transverse field. The self-image
     /// entry (`j = a`) is left out: by the cubic symmetry of the images it
     /// is parallel to `e_a` (derived) and has no transverse part.
+    ///
+    /// Sign: this is the field in the energy convention of the σσ
+    /// coefficients (`E = Σ K σσ`), i.e. minus the physical dipole field
+    /// `∝ 3(e·r̂)r̂ − e`; magnitudes (all the transverse gate uses) agree.
     pub fn field_tables(&self, lat: &Pyrochlore) -> Result<[CouplingTable; 3], CouplingError> {
         require_finite("D (K)", self.d_kelvin)?;
         let kernel = EwaldKernel::new(EwaldParameters::choose(lat.box_length(), self.accuracy)?);

@@ -241,6 +241,22 @@ pub enum GatingError {
     AllFrozen,
     /// A bimodal ratio below 1 or not finite.
     InvalidRatio(f64),
+    /// A continuous rate law with fewer than two grid points, a grid end
+    /// that is not a positive finite number, or a step threshold that is not
+    /// a finite number ≥ 0.
+    InvalidTransverseGrid {
+        /// Grid points given.
+        points: usize,
+        /// The grid end `x_max` (or the step threshold).
+        x_max: f64,
+    },
+    /// A continuous rate law gave a time that is not positive (or NaN).
+    InvalidLawValue {
+        /// `x = |h⊥|/unit` where it happened.
+        x: f64,
+        /// The offending value (s).
+        attempt_time_seconds: f64,
+    },
 }
 
 impl fmt::Display for GatingError {
@@ -262,6 +278,19 @@ impl fmt::Display for GatingError {
             GatingError::InvalidRatio(r) => write!(
                 f,
                 "the slow/fast ratio must be a finite number ≥ 1 (got {r})"
+            ),
+            GatingError::InvalidTransverseGrid { points, x_max } => write!(
+                f,
+                "a continuous rate law needs at least 2 grid points over 0 ≤ x ≤ x_max with \
+                 x_max a positive finite number (got {points} points, x_max = {x_max})"
+            ),
+            GatingError::InvalidLawValue {
+                x,
+                attempt_time_seconds,
+            } => write!(
+                f,
+                "the rate law gives {attempt_time_seconds} s at |h⊥| = {x:.4} (one neighbour's \
+                 field); an attempt time must be a positive number of seconds (or infinite)"
             ),
         }
     }
@@ -423,9 +452,8 @@ impl TransverseRateLaw {
     pub fn validate(&self) -> Result<(), GatingError> {
         let check = |t: f64, x: f64| {
             if t.is_nan() || t <= 0.0 {
-                Err(GatingError::InvalidAttemptTime {
-                    class: 0,
-                    magnitude: x,
+                Err(GatingError::InvalidLawValue {
+                    x,
                     attempt_time_seconds: t,
                 })
             } else {
@@ -437,7 +465,13 @@ impl TransverseRateLaw {
                 x_max,
                 attempt_time_seconds,
             } => {
-                let n = attempt_time_seconds.len().max(2);
+                if attempt_time_seconds.len() < 2 || !(x_max.is_finite() && *x_max > 0.0) {
+                    return Err(GatingError::InvalidTransverseGrid {
+                        points: attempt_time_seconds.len(),
+                        x_max: *x_max,
+                    });
+                }
+                let n = attempt_time_seconds.len();
                 for (k, &t) in attempt_time_seconds.iter().enumerate() {
                     check(t, x_max * k as f64 / (n - 1) as f64)?;
                 }
@@ -450,6 +484,12 @@ impl TransverseRateLaw {
                 slow_seconds,
                 threshold,
             } => {
+                if !(threshold.is_finite() && *threshold >= 0.0) {
+                    return Err(GatingError::InvalidTransverseGrid {
+                        points: 2,
+                        x_max: *threshold,
+                    });
+                }
                 check(*fast_seconds, *threshold)?;
                 check(*slow_seconds, 0.0)?;
                 if fast_seconds.is_infinite() {
@@ -682,6 +722,30 @@ mod tests {
         assert!(AttemptTimes::bimodal(1.0, SlowGate::Ratio(0.5)).is_err());
         assert!(AttemptTimes::uniform(f64::NAN).is_err());
         assert!(GatingError::AllFrozen.to_string().contains("frozen"));
+    }
+
+    #[test]
+    fn continuous_rate_laws_interpolate_clamp_and_step() {
+        // Linear interpolation in the rate between grid points, the last
+        // value beyond x_max, and the bimodal step at x = 1 (definitions of
+        // TransverseRateLaw; derived).
+        let law = TransverseRateLaw::from_rate_law(|x| 1.0 / (1.0 + x), 4.0, 5).unwrap();
+        for x in [0.0, 0.5, 1.0, 2.25, 4.0] {
+            let r = law.rate_per_second(x);
+            assert!((r - (1.0 + x)).abs() < 1e-12, "x = {x}: {r}");
+        }
+        assert!((law.rate_per_second(9.0) - 5.0).abs() < 1e-12);
+        assert!((law.fastest_rate_per_second() - 5.0).abs() < 1e-12);
+        let step = TransverseRateLaw::bimodal(2.0, SlowGate::Ratio(100.0)).unwrap();
+        assert_eq!(step.rate_per_second(0.99), 1.0 / 200.0);
+        assert_eq!(step.rate_per_second(1.0), 0.5);
+        assert_eq!(step.fastest_rate_per_second(), 0.5);
+        let frozen = TransverseRateLaw::bimodal(2.0, SlowGate::Frozen).unwrap();
+        assert_eq!(frozen.rate_per_second(0.2), 0.0);
+        // Refused: a non-positive time anywhere on the grid, a bad grid.
+        assert!(TransverseRateLaw::from_rate_law(|x| 1.0 - x, 4.0, 9).is_err());
+        assert!(TransverseRateLaw::from_rate_law(|_| 1.0, 0.0, 9).is_err());
+        assert!(TransverseRateLaw::from_rate_law(|_| f64::INFINITY, 4.0, 9).is_err());
     }
 }
 

@@ -248,7 +248,6 @@ impl Runner<'_> {
                 law
             }
         };
-        let mut notes = Vec::new();
         let field = match &spec.protocol {
             ProtocolKind::Quench {
                 field_tesla,

@@ -18,8 +18,10 @@
 //!   width `T ln 2` in `ΔE` (so the acceptance factor is at least ½) times
 //!   gate bins (the four six-neighbour classes exactly, or octaves of the
 //!   attempt rate for a continuous rate law), so at least one proposal in
-//!   four is accepted whatever the temperature, where the attempt-based
-//!   execution accepts `~e^{−ΔE/T}` of its attempts.
+//!   four is accepted whatever the temperature (except in the two overflow
+//!   bins, `ΔE ≥ 62 T ln 2` and rates below `2^{−47}` of the fastest, whose
+//!   weight is negligible), where the attempt-based execution accepts
+//!   `~e^{−ΔE/T}` of its attempts.
 //!
 //! After an accepted flip every spin's cost changes a little, so every spin
 //! is re-binned (O(N), the same order as the field update itself).
@@ -44,13 +46,14 @@ use rand::{Rng, RngCore};
 const ENERGY_BINS: usize = 64;
 /// Live octave bins of a continuous attempt rate; one more for rate 0.
 const RATE_OCTAVES: usize = 48;
-/// Attempt acceptance below which thinning beats attempts on this engine.
-/// Why so low: an accepted flip costs the O(N) field pass in both
-/// executions, but thinning re-bins every spin after it (≈ 10 µs per flip at
-/// L = 4 against ≈ 1.6 µs for the field pass, `icefield bench
-/// kinetics_dipolar_flips`), while a rejected attempt costs ≈ 10 ns; so
-/// thinning pays once more than ≈ 10³ attempts are wasted per flip.
-pub const DIPOLAR_THINNING_BELOW_ACCEPTANCE: f64 = 1e-3;
+/// Attempt acceptance below which thinning beats attempts on this engine, times N.
+/// Why: an accepted flip costs the O(N) field pass in both executions, but
+/// thinning also re-bins every spin after it (measured at L = 4, T = 1 K with
+/// `icefield bench kinetics_dipolar_flips`: ≈ 7.6 µs per flip with thinning
+/// against ≈ 1.3 µs with attempts, whose rejected attempts cost ≈ 10 ns), so
+/// thinning pays once more than ≈ N/1.5 attempts are wasted per flip; the
+/// break-even acceptance falls as 1/N.
+pub const DIPOLAR_THINNING_BELOW_ACCEPTANCE_TIMES_N: f64 = 1.5;
 /// Proposals between exact recomputations of the total bound.
 const REFRESH_EVERY: u32 = 4096;
 
@@ -104,7 +107,7 @@ struct Bins {
 }
 
 impl Bins {
-    #[inline]
+    #[inline(always)]
     fn move_spin(&mut self, spin: usize, new: usize) {
         let old = self.bin_of[spin] as usize;
         if old == new {
@@ -299,16 +302,10 @@ impl<'a> DipolarKinetics<'a> {
         }
     }
 
+    /// Width (K) of the energy bins, `T ln 2`.
     #[inline(always)]
-    fn energy_bin(&self, delta_e_kelvin: f64) -> usize {
-        let width = self.temperature_kelvin * std::f64::consts::LN_2;
-        if delta_e_kelvin <= 0.0 {
-            0
-        } else if width <= 0.0 {
-            ENERGY_BINS
-        } else {
-            (1 + (delta_e_kelvin / width) as usize).min(ENERGY_BINS - 1)
-        }
+    fn energy_bin_width_kelvin(&self) -> f64 {
+        self.temperature_kelvin * std::f64::consts::LN_2
     }
 
     #[inline(always)]
@@ -329,7 +326,38 @@ impl<'a> DipolarKinetics<'a> {
 
     #[inline(always)]
     fn bin_of(&self, spin: usize) -> usize {
-        self.energy_bin(self.flip_cost_kelvin(spin)) * self.gate_bins() + self.gate_bin(spin)
+        energy_bin(self.flip_cost_kelvin(spin), self.energy_bin_width_kelvin()) * self.gate_bins()
+            + self.gate_bin(spin)
+    }
+
+    /// Move every spin whose bin changed (after a flip every cost changes a
+    /// little). The six-neighbour case is the common one and runs as one
+    /// pass over σ, h and the gate classes.
+    fn rebin_all(&self, bins: &mut Bins) {
+        let width = self.energy_bin_width_kelvin();
+        match &self.transverse {
+            None => {
+                let z = self.single_kelvin;
+                let gates = self.state.gates.as_slice();
+                for (j, ((&s, &h), &g)) in self
+                    .state
+                    .sigma
+                    .iter()
+                    .zip(&self.field_kelvin)
+                    .zip(gates)
+                    .enumerate()
+                {
+                    let cost = -2.0 * s as f64 * (h + z[j & 3]);
+                    let b = energy_bin(cost, width) * GATE_CLASS_COUNT + g as usize;
+                    bins.move_spin(j, b);
+                }
+            }
+            Some(_) => {
+                for j in 0..self.state.sigma.len() {
+                    bins.move_spin(j, self.bin_of(j));
+                }
+            }
+        }
     }
 
     fn bin_bounds(&self) -> Vec<f64> {
@@ -405,10 +433,7 @@ impl<'a> DipolarKinetics<'a> {
         }
         self.flips += 1;
         if let Some(mut bins) = self.bins.take() {
-            for j in 0..self.state.sigma.len() {
-                let b = self.bin_of(j);
-                bins.move_spin(j, b);
-            }
+            self.rebin_all(&mut bins);
             self.bins = Some(bins);
         }
         observer.on_flip(&FlipEvent {
@@ -514,6 +539,20 @@ impl<'a> DipolarKinetics<'a> {
     }
 }
 
+/// Energy bin of a flip costing `cost_kelvin` with bins of `width_kelvin`:
+/// 0 for `ΔE ≤ 0`, `1 + ⌊ΔE/width⌋` (capped) above, and the dead bin for
+/// `ΔE > 0` at T = 0, where such a flip never happens.
+#[inline(always)]
+fn energy_bin(cost_kelvin: f64, width_kelvin: f64) -> usize {
+    if cost_kelvin <= 0.0 {
+        0
+    } else if width_kelvin <= 0.0 {
+        ENERGY_BINS
+    } else {
+        (1 + (cost_kelvin / width_kelvin) as usize).min(ENERGY_BINS - 1)
+    }
+}
+
 #[inline(always)]
 fn transverse_x(t: &Transverse<'_>, spin: usize) -> f64 {
     let b = [t.field[0][spin], t.field[1][spin], t.field[2][spin]];
@@ -535,6 +574,10 @@ impl<'a> KineticEngine<'a> for DipolarKinetics<'a> {
         max_steps: u64,
         observer: &mut O,
     ) -> bool {
+        // An accepted flip costs O(N) here (field pass, re-binning), so the
+        // caller's step budget between interrupt polls is cut to keep one
+        // chunk to milliseconds whatever N (2^22/N steps: ≈ 15 ms at L = 4).
+        let max_steps = max_steps.min(((1usize << 22) / self.state.sigma.len()).max(16) as u64);
         match execution {
             Execution::AttemptBased => {
                 self.bins = None;
@@ -600,6 +643,6 @@ impl<'a> KineticEngine<'a> for DipolarKinetics<'a> {
     }
 
     fn rejection_free_pays_below(&self) -> f64 {
-        DIPOLAR_THINNING_BELOW_ACCEPTANCE
+        DIPOLAR_THINNING_BELOW_ACCEPTANCE_TIMES_N / self.state.sigma.len() as f64
     }
 }

@@ -19,8 +19,9 @@
 //!
 //! Every channel has the same coefficient for every sublattice: between
 //! different sublattices the vector-convention coefficient `J e_a·e_b` is
-//! `−J/3` for all pairs, within one sublattice it is `J` (checked when the
-//! table is built).
+//! `−J/3` for all pairs, within one sublattice it is `J`, and the Ising
+//! convention uses `J` itself (derived; asserted in debug builds when the
+//! partner lists are built).
 
 use super::{DiscreteFlipEnergy, KineticsError, SpinView, ZeemanField};
 use crate::couplings::CouplingTable;

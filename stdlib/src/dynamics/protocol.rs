@@ -474,6 +474,20 @@ fn drive<'a, K: KineticEngine<'a>>(
     }
     engine.set_temperature(plan.temperature_kelvin)?;
     engine.set_time_seconds(0.0);
+    // After a quench or a step the recording's conditions differ from the
+    // preparation's: choose again (a 10 K → 0.3 K step wants attempts while
+    // hot and the rejection-free execution once cold).
+    let (execution, reason) = match settings.execution {
+        None => {
+            let (recording, why) = choose_execution(engine);
+            if recording == execution {
+                (execution, reason)
+            } else {
+                (recording, format!("preparation {reason}; recording {why}"))
+            }
+        }
+        _ => (execution, reason),
+    };
     let mut trajectory = if interrupted {
         let mut tr = engine.record(
             0.0,

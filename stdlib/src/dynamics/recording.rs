@@ -95,7 +95,7 @@ pub trait KineticEngine<'a> {
         let t0 = self.time_seconds();
         let report_every = (samples / 200).max(1);
         let label = format!("kinetics: samples of simulated time ({execution:?})");
-        push_sample(self, &mut trajectory, t0);
+        push_sample(self, &mut trajectory, 0.0);
         'grid: for k in 1..samples {
             let target = t0 + k as f64 * sample_interval_seconds;
             loop {
@@ -107,7 +107,10 @@ pub trait KineticEngine<'a> {
                     break;
                 }
             }
-            push_sample(self, &mut trajectory, t0);
+            // The grid time itself: the attempt-based clock moves in steps of
+            // τ_min/N and may stop a rounding short of the grid point (no
+            // attempt falls in between, so the state is the grid point's).
+            push_sample(self, &mut trajectory, k as f64 * sample_interval_seconds);
             if k % report_every == 0 {
                 progress(&Progress {
                     label: label.clone(),
@@ -147,10 +150,10 @@ pub trait KineticEngine<'a> {
 fn push_sample<'a, K: KineticEngine<'a> + ?Sized>(
     engine: &K,
     trajectory: &mut Trajectory,
-    t0: f64,
+    time_seconds: f64,
 ) {
     let m = engine.magnetisation();
-    trajectory.times_seconds.push(engine.time_seconds() - t0);
+    trajectory.times_seconds.push(time_seconds);
     trajectory
         .magnetisation_projection
         .push(crate::lattice::dot(m, trajectory.projection_axis));

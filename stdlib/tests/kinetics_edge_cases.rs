@@ -1,12 +1,21 @@
-//! Review tests for the physical-time kinetics (branch h-review).
-//!
-//! `a_rate_law_that_validate_accepts_gives_finite_rates` fails on main: a
-//! `TransverseRateLaw::Table` that `validate` accepts can panic or give NaN
-//! rates. `n_fold_way_with_strong_further_shells_samples_the_equilibrium_energy`
-//! passes on main and fails (≈ 40σ at 3 K) when the n-fold way skips re-binning the
-//! further-shell partners, which no test in kinetics_models.rs notices.
+//! Edge cases of the physical-time kinetics: rate laws that validation
+//! accepts must give usable rates, and the n-fold way with strong further
+//! exchange shells must re-class every partner of a flipped spin (this test
+//! fails by ≈ 40σ at 3 K if the further-shell partners are not re-binned;
+//! the weak shells of kinetics_models.rs would not notice).
 
-use icefield_stdlib::gating::TransverseRateLaw;
+use icefield_stdlib::control::Interrupt;
+use icefield_stdlib::couplings::CouplingTable;
+use icefield_stdlib::dynamics::{
+    AcceptanceRule, ExchangeFlipEnergy, Execution, KineticEngine, Kinetics,
+};
+use icefield_stdlib::engine::{FlipRule, LocalFieldSampler};
+use icefield_stdlib::exchange::{CouplingConvention, ExchangeCouplings};
+use icefield_stdlib::gating::{AttemptTimes, TransverseRateLaw};
+use icefield_stdlib::lattice::Pyrochlore;
+use icefield_stdlib::metropolis::{initial_configuration, Start};
+use icefield_stdlib::observe::blocking_analysis;
+use icefield_stdlib::rng::RngStreams;
 
 /// Rates of a law at a few x, or the panic message.
 fn rates(law: &TransverseRateLaw) -> Result<Vec<f64>, String> {
@@ -76,19 +85,6 @@ fn a_rate_law_that_validate_accepts_gives_finite_rates() {
     }
     assert!(failures.is_empty(), "{}", failures.join("\n"));
 }
-
-use icefield_stdlib::control::Interrupt;
-use icefield_stdlib::couplings::CouplingTable;
-use icefield_stdlib::dynamics::{
-    AcceptanceRule, ExchangeFlipEnergy, Execution, KineticEngine, Kinetics,
-};
-use icefield_stdlib::engine::{FlipRule, LocalFieldSampler};
-use icefield_stdlib::exchange::{CouplingConvention, ExchangeCouplings};
-use icefield_stdlib::gating::AttemptTimes;
-use icefield_stdlib::lattice::Pyrochlore;
-use icefield_stdlib::metropolis::{initial_configuration, Start};
-use icefield_stdlib::observe::blocking_analysis;
-use icefield_stdlib::rng::RngStreams;
 
 #[test]
 fn n_fold_way_with_strong_further_shells_samples_the_equilibrium_energy() {
