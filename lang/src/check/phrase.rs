@@ -9,7 +9,7 @@
 //! repeated), which the rules keep as they were.
 
 use super::Checker;
-use crate::ast::{Arg, Ident, Value};
+use crate::ast::{Arg, Ident, Span, Value};
 use crate::diagnostic::{ErrorKind, Problem};
 
 /// What a connecting word the command does not take swallows after it.
@@ -56,6 +56,18 @@ pub(super) trait PhraseVoice {
     fn missing(&self, _word: &str) -> Option<Problem> {
         None
     }
+}
+
+/// Whether `arg` is the connecting word `word` (for phrases of a fixed shape, matched
+/// item by item: `anneal T from A to B in N steps`, `structure_factor on plane ...`).
+pub(super) fn is_word(arg: Option<&Arg>, word: &str) -> bool {
+    arg.and_then(Arg::connective) == Some(word)
+}
+
+/// The span of a whole phrase, for the one message a phrase of fixed shape gets when it
+/// does not match; `empty` when the phrase is empty.
+pub(super) fn phrase_span(args: &[Arg], empty: Span) -> Span {
+    args.iter().map(Arg::span).reduce(Span::to).unwrap_or(empty)
 }
 
 /// "`w` is given twice".
