@@ -28,7 +28,7 @@ use icefield_stdlib::percolation::{
 use icefield_stdlib::rng::RngStreams;
 use icefield_stdlib::spectra::{welch_psd, WelchSettings};
 
-use super::{Runner, PROGRESS_INTERVAL};
+use super::{column, Runner, PROGRESS_INTERVAL};
 use crate::ast::Span;
 use crate::check::percolation::{
     displacement_unit, squared_unit, ClustersSpec, GrowthSpec, Occupation, OpenHopsSpec,
@@ -38,9 +38,7 @@ use crate::diagnostic::{CellError, ErrorKind, Problem};
 use crate::display;
 use crate::plan::GeneralModel;
 use crate::units::format_number;
-use crate::workspace::{
-    Column, Figure, FigureSeries, Model, Provenance, Table, Value, DEFAULT_SEED,
-};
+use crate::workspace::{Figure, FigureSeries, Model, Provenance, Table, Value, DEFAULT_SEED};
 use crate::Output;
 use icefield_stdlib::scan::coupling_table;
 
@@ -84,16 +82,6 @@ fn kind_name(kind: PercolationKind) -> &'static str {
     match kind {
         PercolationKind::Bond => "bond",
         PercolationKind::Site => "site",
-    }
-}
-
-fn column(name: &str, unit: &str, values: Vec<f64>, errors: Option<Vec<f64>>) -> Column {
-    Column {
-        name: name.to_string(),
-        unit: unit.to_string(),
-        values,
-        errors,
-        derived_from: None,
     }
 }
 
