@@ -219,6 +219,28 @@ impl Runner<'_> {
         }
     }
 
+    /// Stores a result table (under its own name) and the table beside it; a run the user
+    /// interrupted shows the table it kept and stops the cell with `kept`, what it kept.
+    fn keep_tables(
+        &mut self,
+        table: &Table,
+        beside: Option<(&str, Table)>,
+        keyword: Span,
+        kept: Option<String>,
+        emit: &mut dyn FnMut(Output),
+    ) -> Result<(), CellError> {
+        self.workspace
+            .insert(&table.name, Value::Table(table.clone()));
+        if let Some((name, beside)) = beside {
+            self.workspace.insert(name, Value::Table(beside));
+        }
+        if let Some(kept) = kept {
+            emit(Output::Display(display::table(table, None)));
+            return Err(self.interrupted(keyword, kept));
+        }
+        Ok(())
+    }
+
     fn graph(
         &self,
         lattice: LatticeKind,
@@ -382,22 +404,16 @@ impl Runner<'_> {
             ],
             provenance: Some(self.provenance(source, lattice, seed, sweeps_done, interrupted)),
         };
-        self.workspace
-            .insert(&spec.target, Value::Table(table.clone()));
-        self.workspace.insert(&pc_name, Value::Table(pc_table));
-        if interrupted {
-            emit(Output::Display(display::table(&table, None)));
-            return Err(self.interrupted(
-                keyword,
-                format!(
-                    "interrupted: kept {} of {} sizes ({} sweeps or more each) in `{}` and `{pc_name}`",
-                    runs.len(),
-                    spec.sizes.len(),
-                    sweeps_done,
-                    spec.target
-                ),
-            ));
-        }
+        let kept = interrupted.then(|| {
+            format!(
+                "interrupted: kept {} of {} sizes ({} sweeps or more each) in `{}` and `{pc_name}`",
+                runs.len(),
+                spec.sizes.len(),
+                sweeps_done,
+                spec.target
+            )
+        });
+        self.keep_tables(&table, Some((&pc_name, pc_table)), keyword, kept, emit)?;
         let mut text = format!(
             "{}: {} percolation on the {} lattice, L = {}, {} sweeps each, in {:.1} s\n",
             spec.target,
@@ -571,19 +587,13 @@ impl Runner<'_> {
                 interrupted,
             )),
         };
-        self.workspace
-            .insert(&spec.target, Value::Table(table.clone()));
-        self.workspace.insert(&stats_name, Value::Table(stats));
-        if interrupted {
-            emit(Output::Display(display::table(&table, None)));
-            return Err(self.interrupted(
-                keyword,
-                format!(
-                    "interrupted: kept the cluster sizes of {done} of {} realisations in `{}`",
-                    spec.realisations, spec.target
-                ),
-            ));
-        }
+        let kept = interrupted.then(|| {
+            format!(
+                "interrupted: kept the cluster sizes of {done} of {} realisations in `{}`",
+                spec.realisations, spec.target
+            )
+        });
+        self.keep_tables(&table, Some((&stats_name, stats)), keyword, kept, emit)?;
         let xi = point.map(|p| p.correlation_length).unwrap_or(f64::NAN);
         emit(Output::Stream {
             text: format!(
@@ -747,19 +757,13 @@ impl Runner<'_> {
             ],
             provenance: Some(self.provenance(source, lattice, seed, 0, interrupted)),
         };
-        self.workspace
-            .insert(&spec.target, Value::Table(table.clone()));
-        self.workspace.insert(&fit_name, Value::Table(fit_table));
-        if interrupted {
-            emit(Output::Display(display::table(&table, None)));
-            return Err(self.interrupted(
-                keyword,
-                format!(
-                    "interrupted: kept {} seeds in `{}` and the fit in `{fit_name}`",
-                    growth.seeds, spec.target
-                ),
-            ));
-        }
+        let kept = interrupted.then(|| {
+            format!(
+                "interrupted: kept {} seeds in `{}` and the fit in `{fit_name}`",
+                growth.seeds, spec.target
+            )
+        });
+        self.keep_tables(&table, Some((&fit_name, fit_table)), keyword, kept, emit)?;
         let mut text = format!(
             "{}: chemical-distance growth on the {} lattice, L = {}, {} percolation at p = {} ({} seeds)\n",
             spec.target,
@@ -1003,19 +1007,13 @@ impl Runner<'_> {
             ],
             provenance: Some(self.provenance(source, lattice, seed, spec.steps, interrupted)),
         };
-        self.workspace
-            .insert(&spec.target, Value::Table(table.clone()));
-        self.workspace.insert(&psd_name, Value::Table(psd_table));
-        if interrupted {
-            emit(Output::Display(display::table(&table, None)));
-            return Err(self.interrupted(
-                keyword,
-                format!(
-                    "interrupted: kept {} walkers on the cluster and {} on the full lattice in `{}` and `{psd_name}`",
-                    done[0], done[1], spec.target
-                ),
-            ));
-        }
+        let kept = interrupted.then(|| {
+            format!(
+                "interrupted: kept {} walkers on the cluster and {} on the full lattice in `{}` and `{psd_name}`",
+                done[0], done[1], spec.target
+            )
+        });
+        self.keep_tables(&table, Some((&psd_name, psd_table)), keyword, kept, emit)?;
         let last = samples - 1;
         emit(Output::Stream {
             text: format!(
@@ -1255,19 +1253,14 @@ impl Runner<'_> {
                 kinetics: None,
             }),
         };
-        self.workspace
-            .insert(&spec.target, Value::Table(result.clone()));
-        if interrupted {
-            emit(Output::Display(display::table(&result, None)));
-            return Err(self.interrupted(
-                keyword,
-                format!(
-                    "interrupted: kept {} states in `{}`",
-                    rows.len(),
-                    spec.target
-                ),
-            ));
-        }
+        let kept = interrupted.then(|| {
+            format!(
+                "interrupted: kept {} states in `{}`",
+                rows.len(),
+                spec.target
+            )
+        });
+        self.keep_tables(&result, None, keyword, kept, emit)?;
         let mut text = format!(
             "{}: open hop directions under the dynamics rule ({}), {} states per temperature; diamond bond p_c = {}\n",
             spec.target,
