@@ -15,6 +15,7 @@
 //! What needs the numbers (a uniform grid, a band inside the data, enough points) is
 //! checked when the command runs, with the same spans.
 
+use super::phrase::{no_value_problem, AfterUnknown, Phrase, PhraseRules, PhraseVoice};
 use super::{Checked, Checker, CommandSpec, NameView, View};
 use crate::ast::{Arg, ColumnRef, Ident, Opt, Quantity, Span, Statement, Value};
 use crate::diagnostic::{did_you_mean, ErrorKind, Problem};
@@ -287,14 +288,47 @@ impl AnalysisSpec {
 }
 
 /// A command's phrase: the column it reads and its connecting words with their values.
-struct Phrase<'a> {
+struct ColumnPhrase<'a> {
     subject: &'a ColumnRef,
-    words: Vec<(&'a Ident, &'a Value)>,
+    words: Phrase<'a>,
 }
 
-impl<'a> Phrase<'a> {
+impl<'a> ColumnPhrase<'a> {
     fn get(&self, word: &str) -> Option<(&'a Ident, &'a Value)> {
-        self.words.iter().find(|(w, _)| w.name == word).copied()
+        self.words.get(word)
+    }
+}
+
+/// How the analysis commands word the problems of their phrase.
+struct AnalysisVoice<'k> {
+    keyword: &'k str,
+}
+
+impl AnalysisVoice<'_> {
+    fn reads(&self) -> String {
+        format!("it reads `{}`", usage(self.keyword))
+    }
+}
+
+impl PhraseVoice for AnalysisVoice<'_> {
+    fn stray_value(&self, value: &Arg) -> Problem {
+        Problem::new(
+            ErrorKind::Value,
+            value.span(),
+            "unexpected value here: a connecting word should come first",
+        )
+        .with_help(self.reads())
+    }
+    fn unknown_word(&self, word: &Ident) -> Problem {
+        Problem::new(
+            ErrorKind::Value,
+            word.span,
+            format!("`{}` does not take `{}`", self.keyword, word.name),
+        )
+        .with_help(self.reads())
+    }
+    fn no_value(&self, word: &Ident, known: bool) -> Option<Problem> {
+        known.then(|| no_value_problem(word).with_help(self.reads()))
     }
 }
 
@@ -373,13 +407,13 @@ impl Checker<'_> {
         Some(Checked::Command(CommandSpec::Analysis(spec)))
     }
 
-    /// Splits the phrase into its column and `(word, value)` pairs.
+    /// Reads the phrase: its column, then `(word, value)` pairs.
     fn analysis_phrase<'a>(
         &mut self,
         statement: &Statement,
         args: &'a [Arg],
         allowed: &[&str],
-    ) -> Option<Phrase<'a>> {
+    ) -> Option<ColumnPhrase<'a>> {
         let keyword = statement.keyword.name.as_str();
         let subject = match args.first() {
             Some(Arg::Value(Value::Column(c))) => c,
@@ -417,74 +451,21 @@ impl Checker<'_> {
                 return None;
             }
         };
-        let mut words: Vec<(&'a Ident, &'a Value)> = Vec::new();
-        let mut ok = true;
-        let mut rest = args[1..].iter().peekable();
-        while let Some(arg) = rest.next() {
-            match arg {
-                Arg::Connective(word) => {
-                    if !allowed.contains(&word.name.as_str()) {
-                        self.push(
-                            Problem::new(
-                                ErrorKind::Value,
-                                word.span,
-                                format!("`{keyword}` does not take `{}`", word.name),
-                            )
-                            .with_help(format!("it reads `{}`", usage(keyword))),
-                        );
-                        ok = false;
-                        // Skip its value too, so it gives no second error.
-                        if matches!(rest.peek(), Some(Arg::Value(_))) {
-                            rest.next();
-                        }
-                        continue;
-                    }
-                    if words.iter().any(|(w, _)| w.name == word.name) {
-                        self.push(Problem::new(
-                            ErrorKind::Value,
-                            word.span,
-                            format!("`{}` is given twice", word.name),
-                        ));
-                        ok = false;
-                    }
-                    match rest.peek() {
-                        Some(Arg::Value(value)) => {
-                            words.push((word, value));
-                            rest.next();
-                        }
-                        _ => {
-                            self.push(
-                                Problem::new(
-                                    ErrorKind::Value,
-                                    word.span,
-                                    format!("`{}` needs a value after it", word.name),
-                                )
-                                .with_help(format!("it reads `{}`", usage(keyword))),
-                            );
-                            ok = false;
-                        }
-                    }
-                }
-                Arg::Value(value) => {
-                    self.push(
-                        Problem::new(
-                            ErrorKind::Value,
-                            value.span(),
-                            "unexpected value here: a connecting word should come first",
-                        )
-                        .with_help(format!("it reads `{}`", usage(keyword))),
-                    );
-                    ok = false;
-                }
-            }
-        }
-        ok.then_some(Phrase { subject, words })
+        let rules = PhraseRules {
+            words: allowed,
+            bare: &[],
+            required: false,
+            repeatable: false,
+            after_unknown: AfterUnknown::ItsValue,
+        };
+        let words = self.read_phrase(&args[1..], &rules, &AnalysisVoice { keyword })?;
+        Some(ColumnPhrase { subject, words })
     }
 
     /// Resolves `TABLE.Y` and its x column (`against X`, `over X`, or `default_x`).
     fn series(
         &mut self,
-        phrase: &Phrase<'_>,
+        phrase: &ColumnPhrase<'_>,
         default_x: &dyn Fn(&[super::ColumnView], &str) -> Option<String>,
         keyword: &str,
         view: &View,
@@ -628,7 +609,7 @@ impl Checker<'_> {
 
     fn spectrum(
         &mut self,
-        phrase: &Phrase<'_>,
+        phrase: &ColumnPhrase<'_>,
         options: &[&Opt],
         view: &View,
     ) -> Option<SpectrumSpec> {
@@ -697,7 +678,7 @@ impl Checker<'_> {
 
     fn autocorrelation(
         &mut self,
-        phrase: &Phrase<'_>,
+        phrase: &ColumnPhrase<'_>,
         options: &[&Opt],
         view: &View,
     ) -> Option<AutocorrelationSpec> {
@@ -732,7 +713,7 @@ impl Checker<'_> {
     fn band(
         &mut self,
         statement: &Statement,
-        phrase: &Phrase<'_>,
+        phrase: &ColumnPhrase<'_>,
         axis: &AxisUnit,
         what: &str,
     ) -> Option<Option<Band>> {
@@ -808,7 +789,7 @@ impl Checker<'_> {
     fn susceptibility(
         &mut self,
         statement: &Statement,
-        phrase: &Phrase<'_>,
+        phrase: &ColumnPhrase<'_>,
         options: &[&Opt],
         view: &View,
     ) -> Option<SusceptibilitySpec> {
@@ -880,7 +861,7 @@ impl Checker<'_> {
     fn fit(
         &mut self,
         statement: &Statement,
-        phrase: &Phrase<'_>,
+        phrase: &ColumnPhrase<'_>,
         options: &[&Opt],
         view: &View,
     ) -> Option<FitSpec> {

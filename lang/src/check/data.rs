@@ -14,6 +14,7 @@
 
 use serde::{Deserialize, Serialize};
 
+use super::phrase::phrase_span;
 use super::{Checked, Checker, ColumnView, CommandSpec, NameView, View};
 use crate::ast::{Arg, ColumnRef, Ident, Opt, Span, Statement, Value};
 use crate::diagnostic::{did_you_mean, ErrorKind, Problem};
@@ -809,11 +810,7 @@ impl Checker<'_> {
         let path = match args {
             [Arg::Value(Value::Text { text, .. })] => Some(text.clone()),
             _ => {
-                let span = args
-                    .iter()
-                    .map(Arg::span)
-                    .reduce(Span::to)
-                    .unwrap_or(statement.keyword.span);
+                let span = phrase_span(args, statement.keyword.span);
                 self.push(
                     Problem::new(
                         ErrorKind::Syntax,
@@ -950,11 +947,7 @@ impl Checker<'_> {
                 (sim, lab, x)
             }
             _ => {
-                let span = args
-                    .iter()
-                    .map(Arg::span)
-                    .reduce(Span::to)
-                    .unwrap_or(statement.keyword.span);
+                let span = phrase_span(args, statement.keyword.span);
                 self.push(
                     Problem::new(
                         ErrorKind::Syntax,

@@ -11,6 +11,7 @@
 use icefield_stdlib::dynamics::{AcceptanceRule, MAX_SAMPLES};
 use icefield_stdlib::gating::{AttemptTimes, SlowGate, DEFAULT_SLOW_RATIO, GATE_CLASS_COUNT};
 
+use super::phrase::{no_value_problem, AfterUnknown, Phrase, PhraseRules, PhraseVoice};
 use super::{
     list_words, Checked, Checker, ColumnView, CommandSpec, NameView, StartState, View,
     DEFAULT_EQUILIBRATION_SWEEPS, START_STATES,
@@ -210,8 +211,59 @@ fn quantity_text(q: &Quantity) -> String {
     }
 }
 
-/// A phrase item: the connecting word and the value after it.
-type Part<'a> = (&'a Ident, &'a Value);
+/// How the physical-time protocols word the problems of their phrase.
+struct DynamicsVoice<'v> {
+    keyword: &'v str,
+    keyword_span: Span,
+    connectives: &'v [&'v str],
+    example: &'v str,
+}
+
+impl PhraseVoice for DynamicsVoice<'_> {
+    fn stray_value(&self, value: &Arg) -> Problem {
+        Problem::new(
+            ErrorKind::Value,
+            value.span(),
+            "a value here needs a connecting word before it",
+        )
+        .with_help(format!("write e.g. `{}`", self.example))
+    }
+    fn unknown_word(&self, word: &Ident) -> Problem {
+        Problem::new(
+            ErrorKind::Value,
+            word.span,
+            format!(
+                "`{}` takes {}, not `{}`",
+                self.keyword,
+                list_words(self.connectives),
+                word.name
+            ),
+        )
+        .with_help(format!("write e.g. `{}`", self.example))
+    }
+    fn no_value(&self, word: &Ident, _known: bool) -> Option<Problem> {
+        Some(no_value_problem(word))
+    }
+    fn missing(&self, word: &str) -> Option<Problem> {
+        let keyword = self.keyword;
+        let meaning = match word {
+            "for" => "how long to record, `for 10 ms`",
+            "at" => "the temperature, `at 0.4 K`",
+            "from" if keyword == "quench" => "the field before t = 0, `from 0.5 T along [0, 0, 1]`",
+            "to" if keyword == "quench" => "the field after t = 0, `to 0 T`",
+            "from" => "the temperature before t = 0, `from 2 K`",
+            _ => "the temperature after t = 0, `to 0.5 K`",
+        };
+        Some(
+            Problem::new(
+                ErrorKind::Value,
+                self.keyword_span,
+                format!("`{keyword}` needs `{word}`: {meaning}"),
+            )
+            .with_help(format!("write e.g. `{}`", self.example)),
+        )
+    }
+}
 
 impl Checker<'_> {
     pub(super) fn check_dynamics(
@@ -616,11 +668,7 @@ impl Checker<'_> {
         let parts = self.dynamics_phrase(statement, args, subject, connectives, example);
         let options = self.options(options, allowed_options, keyword);
         let find = |key: &str| options.iter().find(|o| o.key.name == key).copied();
-        let part = |word: &str| {
-            parts
-                .as_ref()
-                .and_then(|p| p.iter().find(|(w, _)| w.name == word).map(|(_, v)| *v))
-        };
+        let part = |word: &str| parts.as_ref().and_then(|p| p.value(word));
         let duration = part("for").and_then(|v| self.duration(v, "the duration after `for`"));
         let mut phrase_text = String::new();
         let (protocol, temperature) = match keyword {
@@ -812,7 +860,7 @@ impl Checker<'_> {
         subject: Option<&str>,
         connectives: &[&str],
         example: &str,
-    ) -> Option<Vec<Part<'a>>> {
+    ) -> Option<Phrase<'a>> {
         let keyword = statement.keyword.name.as_str();
         let before = self.problems.len();
         let mut rest = args;
@@ -853,82 +901,22 @@ impl Checker<'_> {
                 }
             }
         }
-        let mut parts: Vec<Part<'a>> = Vec::new();
-        let mut index = 0;
-        while index < rest.len() {
-            match &rest[index] {
-                Arg::Connective(word) => {
-                    if !connectives.contains(&word.name.as_str()) {
-                        self.push(
-                            Problem::new(
-                                ErrorKind::Value,
-                                word.span,
-                                format!(
-                                    "`{keyword}` takes {}, not `{}`",
-                                    list_words(connectives),
-                                    word.name
-                                ),
-                            )
-                            .with_help(format!("write e.g. `{example}`")),
-                        );
-                    } else if parts.iter().any(|(w, _)| w.name == word.name) {
-                        self.push(Problem::new(
-                            ErrorKind::Value,
-                            word.span,
-                            format!("`{}` is given twice", word.name),
-                        ));
-                    }
-                    match rest.get(index + 1) {
-                        Some(Arg::Value(value)) => {
-                            parts.push((word, value));
-                            index += 2;
-                        }
-                        _ => {
-                            self.push(Problem::new(
-                                ErrorKind::Value,
-                                word.span,
-                                format!("`{}` needs a value after it", word.name),
-                            ));
-                            index += 1;
-                        }
-                    }
-                }
-                Arg::Value(value) => {
-                    self.push(
-                        Problem::new(
-                            ErrorKind::Value,
-                            value.span(),
-                            "a value here needs a connecting word before it",
-                        )
-                        .with_help(format!("write e.g. `{example}`")),
-                    );
-                    index += 1;
-                }
-            }
-        }
-        for word in connectives {
-            if !parts.iter().any(|(w, _)| w.name == *word) && self.problems.len() == before {
-                let meaning = match *word {
-                    "for" => "how long to record, `for 10 ms`",
-                    "at" => "the temperature, `at 0.4 K`",
-                    "from" if keyword == "quench" => {
-                        "the field before t = 0, `from 0.5 T along [0, 0, 1]`"
-                    }
-                    "to" if keyword == "quench" => "the field after t = 0, `to 0 T`",
-                    "from" => "the temperature before t = 0, `from 2 K`",
-                    _ => "the temperature after t = 0, `to 0.5 K`",
-                };
-                self.push(
-                    Problem::new(
-                        ErrorKind::Value,
-                        statement.keyword.span,
-                        format!("`{keyword}` needs `{word}`: {meaning}"),
-                    )
-                    .with_help(format!("write e.g. `{example}`")),
-                );
-            }
-        }
-        (self.problems.len() == before).then_some(parts)
+        let rules = PhraseRules {
+            words: connectives,
+            bare: &[],
+            // A wrong subject already says what the phrase should read.
+            required: self.problems.len() == before,
+            repeatable: false,
+            after_unknown: AfterUnknown::ItsValue,
+        };
+        let voice = DynamicsVoice {
+            keyword,
+            keyword_span: statement.keyword.span,
+            connectives,
+            example,
+        };
+        let phrase = self.read_phrase(rest, &rules, &voice);
+        phrase.filter(|_| self.problems.len() == before)
     }
 
     fn duration(&mut self, value: &Value, what: &str) -> Option<f64> {

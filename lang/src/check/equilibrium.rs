@@ -5,6 +5,7 @@
 //! `T at [...]`) and takes the same options except `tempering`; the phrase is rebuilt as a
 //! scan range and checked by the scan checker, so both statements report the same errors.
 
+use super::phrase::{is_word, phrase_span};
 use super::{list_words, Checked, Checker, ColumnView, CommandSpec, NameView, ScanSpec, View};
 use crate::ast::{Arg, Ident, Number, Opt, ScanRange, Span, Statement, Value};
 use crate::diagnostic::{did_you_mean, ErrorKind, Problem};
@@ -91,7 +92,6 @@ impl Checker<'_> {
 
     /// `T from A to B in N steps` or `T at [...]`, as a scan range.
     fn anneal_phrase(&mut self, statement: &Statement, args: &[Arg]) -> Option<(Ident, ScanRange)> {
-        let connective = |arg: Option<&Arg>, word: &str| matches!(arg, Some(Arg::Connective(c)) if c.name == word);
         let quantity = |arg: Option<&Arg>| match arg {
             Some(Arg::Value(Value::Quantity(q))) => Some(q.clone()),
             _ => None,
@@ -122,7 +122,7 @@ impl Checker<'_> {
             }
         };
         let rest = &args[1..];
-        if connective(rest.first(), "at") {
+        if is_word(rest.first(), "at") {
             return match (rest.get(1), rest.len()) {
                 (Some(Arg::Value(list @ Value::List { .. })), 2) => {
                     Some((variable, ScanRange::At(list.clone())))
@@ -141,10 +141,10 @@ impl Checker<'_> {
             };
         }
         let shaped = rest.len() == 7
-            && connective(rest.first(), "from")
-            && connective(rest.get(2), "to")
-            && connective(rest.get(4), "in")
-            && connective(rest.get(6), "steps");
+            && is_word(rest.first(), "from")
+            && is_word(rest.get(2), "to")
+            && is_word(rest.get(4), "in")
+            && is_word(rest.get(6), "steps");
         let (from, to, steps) = (
             quantity(rest.get(1)),
             quantity(rest.get(3)),
@@ -167,14 +167,7 @@ impl Checker<'_> {
                 Some((variable, ScanRange::FromTo { from, to, steps }))
             }
             _ => {
-                let span = rest
-                    .first()
-                    .map(|first| {
-                        first
-                            .span()
-                            .to(rest.last().map(Arg::span).unwrap_or(first.span()))
-                    })
-                    .unwrap_or(variable.span);
+                let span = phrase_span(rest, variable.span);
                 self.push(
                     Problem::new(
                         ErrorKind::Syntax,
@@ -266,9 +259,8 @@ impl Checker<'_> {
         };
         let options = self.options(options, STRUCTURE_FACTOR_OPTIONS, "structure_factor");
         let find = |key: &str| options.iter().find(|o| o.key.name == key).copied();
-        let connective = |arg: Option<&Arg>, word: &str| matches!(arg, Some(Arg::Connective(c)) if c.name == word);
         // The phrase: `on plane LIST at T` or `along LIST through LIST at T`.
-        let (geometry, at) = if connective(args.first(), "on")
+        let (geometry, at) = if is_word(args.first(), "on")
             && matches!(args.get(1), Some(Arg::Value(Value::Word(w))) if w.name == "plane")
         {
             let plane = match args.get(2) {
@@ -283,7 +275,7 @@ impl Checker<'_> {
                 }
             };
             (plane, 3)
-        } else if connective(args.first(), "along") {
+        } else if is_word(args.first(), "along") {
             let direction = match args.get(1) {
                 Some(Arg::Value(list @ Value::List { .. })) => self.q_direction(list),
                 other => {
@@ -295,7 +287,7 @@ impl Checker<'_> {
                     None
                 }
             };
-            let through = if connective(args.get(2), "through") {
+            let through = if is_word(args.get(2), "through") {
                 match args.get(3) {
                     Some(Arg::Value(list @ Value::List { .. })) => self
                         .vector(list, Dimension::Dimensionless, "the point `through`")
@@ -326,7 +318,7 @@ impl Checker<'_> {
             self.phrase_problem(statement, args.first(), "`structure_factor` reads `on plane [h, h, l] at T` or `along [0, 0, l] through [0, 0, 2] at T`");
             return None;
         };
-        let temperature = if connective(args.get(at), "at") {
+        let temperature = if is_word(args.get(at), "at") {
             match args.get(at + 1) {
                 Some(Arg::Value(Value::Quantity(q))) if args.len() == at + 2 => {
                     self.temperature(q, None, "the temperature")

@@ -13,6 +13,7 @@ pub mod dynamics;
 pub mod equilibrium;
 pub mod monopoles;
 pub mod percolation;
+mod phrase;
 
 use crate::ast::*;
 use crate::commands::{self, Family};

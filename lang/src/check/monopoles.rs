@@ -12,6 +12,7 @@
 //! (`model.dynamics`): tracking runs its kinetics, the reachable-site searches take their
 //! open (fast) gate classes from its attempt times.
 
+use super::phrase::{given_twice_problem, AfterUnknown, PhraseRules, PhraseVoice};
 use super::{list_words, Checked, Checker, ColumnView, CommandSpec, NameView, View};
 use crate::ast::{Arg, Ident, Opt, Quantity, Statement, Value};
 use crate::diagnostic::{did_you_mean, ErrorKind, Problem};
@@ -200,6 +201,69 @@ fn table_view(columns: &[(&str, &str)]) -> NameView {
     )
 }
 
+/// How the monopole commands word the problems of their phrase.
+struct MonopolesVoice<'v> {
+    keyword: &'v Ident,
+    wanted: &'v [&'v str],
+    usage: &'v str,
+}
+
+impl MonopolesVoice<'_> {
+    fn write(&self) -> String {
+        format!("write `{}`", self.usage)
+    }
+}
+
+impl PhraseVoice for MonopolesVoice<'_> {
+    fn stray_value(&self, value: &Arg) -> Problem {
+        Problem::new(
+            ErrorKind::Syntax,
+            value.span(),
+            format!("`{}` does not expect a value here", self.keyword.name),
+        )
+        .with_help(self.write())
+    }
+    fn unknown_word(&self, word: &Ident) -> Problem {
+        let reads: Vec<String> = self.wanted.iter().map(|w| format!("`{w} ...`")).collect();
+        let reads: Vec<&str> = reads.iter().map(String::as_str).collect();
+        Problem::new(
+            ErrorKind::Syntax,
+            word.span,
+            format!(
+                "`{}` reads {}, not `{}`",
+                self.keyword.name,
+                list_words(&reads),
+                word.name
+            ),
+        )
+        .with_help(self.write())
+    }
+    fn given_twice(&self, word: &Ident, has_value: bool) -> Option<Problem> {
+        // Without a value it is reported as such, not as a repeat.
+        has_value.then(|| given_twice_problem(word))
+    }
+    fn no_value(&self, word: &Ident, _known: bool) -> Option<Problem> {
+        Some(
+            Problem::new(
+                ErrorKind::Syntax,
+                word.span,
+                format!("`{}` needs a value after it", word.name),
+            )
+            .with_help(self.write()),
+        )
+    }
+    fn missing(&self, word: &str) -> Option<Problem> {
+        Some(
+            Problem::new(
+                ErrorKind::Syntax,
+                self.keyword.span,
+                format!("`{}` needs `{word} ...`", self.keyword.name),
+            )
+            .with_help(self.write()),
+        )
+    }
+}
+
 impl Checker<'_> {
     pub(super) fn check_monopoles(
         &mut self,
@@ -252,88 +316,20 @@ impl Checker<'_> {
         wanted: &[&str],
         usage: &str,
     ) -> Option<Vec<&'a Value>> {
-        let keyword = &statement.keyword.name;
-        let mut found: Vec<Option<&'a Value>> = vec![None; wanted.len()];
-        let before = self.problems.len();
-        let mut index = 0;
-        while index < args.len() {
-            let arg = &args[index];
-            let Some(word) = arg.connective() else {
-                self.push(
-                    Problem::new(
-                        ErrorKind::Syntax,
-                        arg.span(),
-                        format!("`{keyword}` does not expect a value here"),
-                    )
-                    .with_help(format!("write `{usage}`")),
-                );
-                index += 1;
-                continue;
-            };
-            let Some(slot) = wanted.iter().position(|w| *w == word) else {
-                self.push(
-                    Problem::new(
-                        ErrorKind::Syntax,
-                        arg.span(),
-                        format!(
-                            "`{keyword}` reads {}, not `{word}`",
-                            list_words(
-                                &wanted
-                                    .iter()
-                                    .map(|w| format!("`{w} ...`"))
-                                    .collect::<Vec<_>>()
-                                    .iter()
-                                    .map(String::as_str)
-                                    .collect::<Vec<_>>()
-                            )
-                        ),
-                    )
-                    .with_help(format!("write `{usage}`")),
-                );
-                index += 2;
-                continue;
-            };
-            match args.get(index + 1) {
-                Some(Arg::Value(value)) => {
-                    if found[slot].is_some() {
-                        self.push(Problem::new(
-                            ErrorKind::Value,
-                            arg.span(),
-                            format!("`{word}` is given twice"),
-                        ));
-                    }
-                    found[slot] = Some(value);
-                    index += 2;
-                }
-                _ => {
-                    self.push(
-                        Problem::new(
-                            ErrorKind::Syntax,
-                            arg.span(),
-                            format!("`{word}` needs a value after it"),
-                        )
-                        .with_help(format!("write `{usage}`")),
-                    );
-                    index += 1;
-                }
-            }
-        }
-        for (word, value) in wanted.iter().zip(&found) {
-            if value.is_none() && self.problems.len() == before {
-                self.push(
-                    Problem::new(
-                        ErrorKind::Syntax,
-                        statement.keyword.span,
-                        format!("`{keyword}` needs `{word} ...`"),
-                    )
-                    .with_help(format!("write `{usage}`")),
-                );
-            }
-        }
-        if self.problems.len() > before {
-            return None;
-        }
-        Some(found.into_iter().flatten().collect())
+        let rules = PhraseRules {
+            words: wanted,
+            bare: &[],
+            required: true,
+            repeatable: false,
+            after_unknown: AfterUnknown::NextItem,
+        };
+        let voice = MonopolesVoice {
+            keyword: &statement.keyword,
+            wanted,
+            usage,
+        };
+        let phrase = self.read_phrase(args, &rules, &voice)?;
+        wanted.iter().map(|word| phrase.value(word)).collect()
     }
 
     /// A positive quantity of `dimension` given as a phrase value.

@@ -11,6 +11,7 @@
 //! * `percolation walkers on diamond at p = 0.388, steps = 10000, walkers = 200`
 //! * `percolation open_hops at 0.3 K`
 
+use super::phrase::{AfterUnknown, Phrase, PhraseRules, PhraseVoice};
 use super::{list_words, Checked, Checker, CommandSpec, NameView, View};
 use crate::ast::{Arg, Ident, Opt, Statement, Value};
 use crate::diagnostic::{ErrorKind, Problem};
@@ -248,15 +249,28 @@ pub fn squared_unit(lattice: LatticeKind) -> String {
     }
 }
 
-/// The phrase after the mode word, by connective.
-#[derive(Default)]
-struct Phrase<'a> {
-    on: Option<&'a Value>,
-    at: Option<&'a Value>,
-    /// `at` with nothing after it (the value is the option `p = ...`).
-    bare_at: Option<&'a Ident>,
-    from: Option<&'a Value>,
-    to: Option<&'a Value>,
+/// How `percolation` words the problems of its phrase.
+struct PercolationVoice;
+
+impl PhraseVoice for PercolationVoice {
+    fn stray_value(&self, value: &Arg) -> Problem {
+        Problem::new(
+            ErrorKind::Value,
+            value.span(),
+            "unexpected value in the `percolation` phrase",
+        )
+        .with_help("the phrase reads `on LATTICE at P`, then options")
+    }
+    fn unknown_word(&self, word: &Ident) -> Problem {
+        Problem::new(
+            ErrorKind::Value,
+            word.span,
+            format!(
+                "`{}` has no meaning in a `percolation` phrase; use `on`, `at`, `from` or `to`",
+                word.name
+            ),
+        )
+    }
 }
 
 impl Checker<'_> {
@@ -329,67 +343,17 @@ impl Checker<'_> {
         }
     }
 
-    /// Splits the phrase into its connective slots, reporting words out of place.
+    /// Reads the phrase after the mode word, reporting words out of place.
     fn percolation_phrase<'a>(&mut self, args: &'a [Arg]) -> Option<Phrase<'a>> {
-        let mut phrase = Phrase::default();
-        let mut ok = true;
-        let mut index = 0;
-        while index < args.len() {
-            let arg = &args[index];
-            let Arg::Connective(word) = arg else {
-                self.push(
-                    Problem::new(
-                        ErrorKind::Value,
-                        arg.span(),
-                        "unexpected value in the `percolation` phrase",
-                    )
-                    .with_help("the phrase reads `on LATTICE at P`, then options"),
-                );
-                ok = false;
-                index += 1;
-                continue;
-            };
-            let value = match args.get(index + 1) {
-                Some(Arg::Value(v)) => Some(v),
-                _ => None,
-            };
-            let slot = match word.name.as_str() {
-                "on" => &mut phrase.on,
-                "at" => &mut phrase.at,
-                "from" => &mut phrase.from,
-                "to" => &mut phrase.to,
-                other => {
-                    self.push(Problem::new(
-                        ErrorKind::Value,
-                        word.span,
-                        format!("`{other}` has no meaning in a `percolation` phrase; use `on`, `at`, `from` or `to`"),
-                    ));
-                    ok = false;
-                    index += 1;
-                    continue;
-                }
-            };
-            match value {
-                Some(v) => {
-                    *slot = Some(v);
-                    index += 2;
-                }
-                None if word.name == "at" => {
-                    phrase.bare_at = Some(word);
-                    index += 1;
-                }
-                None => {
-                    self.push(Problem::new(
-                        ErrorKind::Value,
-                        word.span,
-                        format!("`{}` needs a value after it", word.name),
-                    ));
-                    ok = false;
-                    index += 1;
-                }
-            }
-        }
-        ok.then_some(phrase)
+        let rules = PhraseRules {
+            words: &["on", "at", "from", "to"],
+            // `at p = 0.5`: the value is the option.
+            bare: &["at"],
+            required: false,
+            repeatable: true,
+            after_unknown: AfterUnknown::Nothing,
+        };
+        self.read_phrase(args, &rules, &PercolationVoice)
     }
 
     fn percolation_lattice(
@@ -397,7 +361,7 @@ impl Checker<'_> {
         statement: &Statement,
         phrase: &Phrase,
     ) -> Option<LatticeKind> {
-        let Some(value) = phrase.on else {
+        let Some(value) = phrase.value("on") else {
             self.push(
                 Problem::new(
                     ErrorKind::Value,
@@ -457,7 +421,7 @@ impl Checker<'_> {
             PercolationKind::Site => "percolation site",
         };
         let options = self.options(options, THRESHOLD_OPTIONS, statement_name);
-        if let Some(at) = phrase.at {
+        if let Some(at) = phrase.value("at") {
             self.push(Problem::new(
                 ErrorKind::Value,
                 at.span(),
@@ -514,11 +478,11 @@ impl Checker<'_> {
             None => 100,
         };
         let reference = icefield_stdlib::percolation::threshold(lattice, kind);
-        let lo = match phrase.from {
+        let lo = match phrase.value("from") {
             Some(v) => self.probability(v, "the start of the p window")?,
             None => (reference - 0.12).max(0.0),
         };
-        let hi = match phrase.to {
+        let hi = match phrase.value("to") {
             Some(v) => self.probability(v, "the end of the p window")?,
             None => (reference + 0.12).min(1.0),
         };
@@ -526,8 +490,8 @@ impl Checker<'_> {
             self.push(Problem::new(
                 ErrorKind::Value,
                 phrase
-                    .to
-                    .or(phrase.from)
+                    .value("to")
+                    .or(phrase.value("from"))
                     .map(|v| v.span())
                     .unwrap_or(statement.span),
                 format!("the p window must run upwards (from {lo} to {hi})"),
@@ -564,7 +528,7 @@ impl Checker<'_> {
         let options = self.options(options, allowed, &name);
         let lattice = lattice?;
         let get = |key: &str| options.iter().find(|o| o.key.name == key).map(|o| &o.value);
-        let p = match (phrase.at, get("p")) {
+        let p = match (phrase.value("at"), get("p")) {
             (Some(at), None) => self.probability(at, "p")?,
             (None, Some(v)) => self.probability(v, "`p`")?,
             (Some(at), Some(_)) => {
@@ -580,7 +544,7 @@ impl Checker<'_> {
                     Problem::new(
                         ErrorKind::Value,
                         phrase
-                            .bare_at
+                            .bare("at")
                             .map(|w| w.span)
                             .unwrap_or(statement.keyword.span),
                         format!("`{name}` needs the occupation probability"),
@@ -697,7 +661,7 @@ impl Checker<'_> {
         view: &View,
     ) -> Option<PercolationSpec> {
         let options = self.options(options, OPEN_HOPS_OPTIONS, "percolation open_hops");
-        if let Some(on) = phrase.on {
+        if let Some(on) = phrase.value("on") {
             self.push(Problem::new(
                 ErrorKind::Value,
                 on.span(),
@@ -714,7 +678,7 @@ impl Checker<'_> {
                 .with_help("declare them first, e.g. `lattice pyrochlore L = 4` and `couplings nearest J_eff = 1.8 K`, then a dynamics rule"),
             );
         }
-        let temperatures = match phrase.at {
+        let temperatures = match phrase.value("at") {
             Some(Value::Quantity(q)) => vec![self.temperature(q, None, "the temperature")?],
             Some(list @ Value::List { .. }) => self.temperature_list(list)?,
             Some(other) => {

@@ -19,7 +19,7 @@ use icefield_stdlib::spectra::{
     welch_psd, Detrend, Normalisation, SpectraError, WelchSettings, Window,
 };
 
-use super::{error_at, Runner};
+use super::{column, error_at, Runner};
 use crate::ast::Span;
 use crate::check::analysis::{
     parameter_units, squared_unit_per, AnalysisSpec, AutocorrelationSpec, Band, FitModel, FitSpec,
@@ -28,7 +28,7 @@ use crate::check::analysis::{
 use crate::diagnostic::{CellError, ErrorKind};
 use crate::display::{self, format_with_error};
 use crate::units::{format_number, with_unit};
-use crate::workspace::{Column, Figure, FigureSeries, Model, Provenance, Table, Value};
+use crate::workspace::{Figure, FigureSeries, Model, Provenance, Table, Value};
 use crate::Output;
 
 /// Relative tolerance of a uniform grid: a step may differ from the mean step by this
@@ -217,8 +217,8 @@ impl Runner<'_> {
         let table = Table {
             name: spec.target.clone(),
             columns: vec![
-                column("f", "Hz", spectrum.frequencies_hertz.clone()),
-                column("psd", &psd_unit, spectrum.density_per_hertz.clone()),
+                column("f", "Hz", spectrum.frequencies_hertz.clone(), None),
+                column("psd", &psd_unit, spectrum.density_per_hertz.clone(), None),
             ],
             provenance: derived_provenance(&data.provenance, &source),
         };
@@ -337,8 +337,8 @@ impl Runner<'_> {
             Value::Table(Table {
                 name: spec.target.clone(),
                 columns: vec![
-                    column("lag", &unit, lag.clone()),
-                    column("C", "", c.clone()),
+                    column("lag", &unit, lag.clone(), None),
+                    column("C", "", c.clone(), None),
                 ],
                 provenance: provenance.clone(),
             }),
@@ -353,9 +353,9 @@ impl Runner<'_> {
             Value::Table(Table {
                 name: tau_name.clone(),
                 columns: vec![
-                    column("tau_int", &unit, vec![tau]),
-                    column("tau_int_error", &unit, vec![tau_error]),
-                    column("window", &unit, vec![time.window as f64 * dt]),
+                    column("tau_int", &unit, vec![tau], None),
+                    column("tau_int_error", &unit, vec![tau_error], None),
+                    column("window", &unit, vec![time.window as f64 * dt], None),
                 ],
                 provenance,
             }),
@@ -453,9 +453,9 @@ impl Runner<'_> {
             Value::Table(Table {
                 name: spec.target.clone(),
                 columns: vec![
-                    column("f", "Hz", frequencies.clone()),
-                    column("chi_real", &chi_unit, chi.chi_real.clone()),
-                    column("chi_imag", &chi_unit, chi.chi_imag.clone()),
+                    column("f", "Hz", frequencies.clone(), None),
+                    column("chi_real", &chi_unit, chi.chi_real.clone(), None),
+                    column("chi_imag", &chi_unit, chi.chi_imag.clone(), None),
                 ],
                 provenance: provenance.clone(),
             }),
@@ -468,9 +468,9 @@ impl Runner<'_> {
             Value::Table(Table {
                 name: tau_name.clone(),
                 columns: vec![
-                    column("tau", "s", vec![tau]),
-                    column("f_peak", "Hz", vec![1.0 / (2.0 * PI * tau)]),
-                    column("chi0", &chi_unit, vec![chi0]),
+                    column("tau", "s", vec![tau], None),
+                    column("f_peak", "Hz", vec![1.0 / (2.0 * PI * tau)], None),
+                    column("chi0", &chi_unit, vec![chi0], None),
                 ],
                 provenance,
             }),
@@ -645,11 +645,21 @@ impl Runner<'_> {
         for ((name, (value, error)), unit) in
             spec.model.parameters().iter().zip(&parameters).zip(&units)
         {
-            columns.push(column(name, unit, vec![*value]));
-            columns.push(column(&format!("{name}_error"), unit, vec![*error]));
+            columns.push(column(name, unit, vec![*value], None));
+            columns.push(column(&format!("{name}_error"), unit, vec![*error], None));
         }
-        columns.push(column("chi2_dof", "", vec![result.reduced_chi_squared]));
-        columns.push(column("dof", "", vec![result.degrees_of_freedom as f64]));
+        columns.push(column(
+            "chi2_dof",
+            "",
+            vec![result.reduced_chi_squared],
+            None,
+        ));
+        columns.push(column(
+            "dof",
+            "",
+            vec![result.degrees_of_freedom as f64],
+            None,
+        ));
         let band_text = spec.band.as_ref().map(|b| {
             format!(
                 " over {} from {} to {}",
@@ -831,16 +841,6 @@ fn data_series(
         },
         style,
     )
-}
-
-fn column(name: &str, unit: &str, values: Vec<f64>) -> Column {
-    Column {
-        name: name.to_string(),
-        unit: unit.to_string(),
-        values,
-        errors: None,
-        derived_from: None,
-    }
 }
 
 /// The input's provenance with the analysis in front of its source.

@@ -3,7 +3,7 @@
 use icefield_stdlib::figure::{render_svg, Axis, AxisScale, LinePlot, Series, SeriesStyle};
 use icefield_stdlib::fit::fit_log_scale;
 
-use super::{error_at, Runner};
+use super::{column, error_at, Runner};
 use crate::ast::Span;
 use crate::check::data::{
     convert_value, convert_values, measured_table, measured_tau_factor, read_measured,
@@ -91,7 +91,7 @@ impl Runner<'_> {
                 .table(name)
                 .ok_or_else(|| fail(ErrorKind::Name, format!("no table `{name}`")))
         };
-        let column = |t: &'_ Table, name: &str| -> Result<Column, CellError> {
+        let column_of = |t: &'_ Table, name: &str| -> Result<Column, CellError> {
             t.column(name).cloned().ok_or_else(|| {
                 fail(
                     ErrorKind::Name,
@@ -101,10 +101,10 @@ impl Runner<'_> {
         };
         let sim_table = table(&spec.simulated.0)?;
         let lab_table = table(&spec.measured.0)?;
-        let sim_x = column(sim_table, &spec.x_column)?;
-        let sim_tau = column(sim_table, &spec.simulated.1)?;
-        let lab_x = column(lab_table, &spec.x_column)?;
-        let lab_tau = column(lab_table, &spec.measured.1)?;
+        let sim_x = column_of(sim_table, &spec.x_column)?;
+        let sim_tau = column_of(sim_table, &spec.simulated.1)?;
+        let lab_x = column_of(lab_table, &spec.x_column)?;
+        let lab_tau = column_of(lab_table, &spec.measured.1)?;
         let provenance = sim_table.provenance.clone().map(|mut p| {
             p.source = format!(
                 "τ0 calibration of {}.{} to {}.{} ({})",
@@ -315,24 +315,17 @@ impl Runner<'_> {
             .zip(&calibrated)
             .map(|(m, c)| (m / c).ln())
             .collect();
-        let plain = |name: &str, unit: &str, values: Vec<f64>, errors: Option<Vec<f64>>| Column {
-            name: name.to_string(),
-            unit: unit.to_string(),
-            values,
-            errors,
-            derived_from: None,
-        };
         let result = Table {
             name: spec.target.clone(),
             columns: vec![
-                plain("tau0", "s", vec![tau0], Some(vec![tau0_error])),
-                plain(
+                column("tau0", "s", vec![tau0], Some(vec![tau0_error])),
+                column(
                     "reduced_chi_squared",
                     "",
                     vec![fit.reduced_chi_squared],
                     None,
                 ),
-                plain("points", "", vec![points.len() as f64], None),
+                column("points", "", vec![points.len() as f64], None),
             ],
             provenance: provenance.clone(),
         };
@@ -340,20 +333,20 @@ impl Runner<'_> {
         let residuals = Table {
             name: residuals_name.clone(),
             columns: vec![
-                plain(
+                column(
                     &spec.x_column,
                     &x_unit,
                     points.iter().map(|p| p.0).collect(),
                     None,
                 ),
-                plain(
+                column(
                     "measured",
                     "s",
                     measured.clone(),
                     lab_has_errors.then(|| points.iter().map(|p| p.2.unwrap_or(0.0)).collect()),
                 ),
-                plain("calibrated", "s", calibrated, None),
-                plain("residual", "", residual, None),
+                column("calibrated", "s", calibrated, None),
+                column("residual", "", residual, None),
             ],
             provenance,
         };

@@ -15,7 +15,7 @@ use icefield_stdlib::structure_factor::{
     StructureFactorSettings,
 };
 
-use super::{error_at, Runner, PROGRESS_INTERVAL};
+use super::{column, error_at, Runner, PROGRESS_INTERVAL};
 use crate::ast::Span;
 use crate::check::equilibrium::{
     EquilibriumSpec, QGeometry, StructureFactorSpec, STRUCTURE_FACTOR_UNIT,
@@ -25,7 +25,7 @@ use crate::diagnostic::{CellError, ErrorKind};
 use crate::display::{self, header};
 use crate::plan::{scan_step, Ladder, ScanEngine};
 use crate::units::format_number;
-use crate::workspace::{Column, Figure, Model, Provenance, Table, Value};
+use crate::workspace::{Figure, Model, Provenance, Table, Value};
 use crate::Output;
 
 impl Runner<'_> {
@@ -134,13 +134,6 @@ impl Runner<'_> {
                 lattice_constant_angstrom: a,
             }),
         };
-        let column = |name: &str, unit: &str, values: Vec<f64>| Column {
-            name: name.to_string(),
-            unit: unit.to_string(),
-            values,
-            errors: None,
-            derived_from: None,
-        };
         let r = spec.range_rlu;
         let mut columns = Vec::new();
         let mut figure = None;
@@ -173,13 +166,14 @@ impl Runner<'_> {
                     .iter()
                     .flat_map(|&y| std::iter::repeat_n(y, nx))
                     .collect();
-                columns.push(column(&axes[0], "r.l.u.", xs));
-                columns.push(column(&axes[1], "r.l.u.", ys));
+                columns.push(column(&axes[0], "r.l.u.", xs, None));
+                columns.push(column(&axes[1], "r.l.u.", ys, None));
                 for ((name, _), map) in channels.iter().zip(&maps) {
                     columns.push(column(
                         name,
                         STRUCTURE_FACTOR_UNIT,
                         map.values.iter().flatten().copied().collect(),
+                        None,
                     ));
                 }
                 // The map drawn: the spin-flip channel when polarised (where the pinch
@@ -228,12 +222,12 @@ impl Runner<'_> {
                 let xs: Vec<f64> = (0..n)
                     .map(|i| x0 - r + 2.0 * r * i as f64 / (n - 1) as f64)
                     .collect();
-                columns.push(column(axis, "r.l.u.", xs));
+                columns.push(column(axis, "r.l.u.", xs, None));
                 for (name, channel) in &channels {
                     let values =
                         structure_factor_at(&lat, &configurations, &qs, &sq_settings(*channel))
                             .map_err(|e| fail(self, ErrorKind::Value, e.to_string()))?;
-                    columns.push(column(name, STRUCTURE_FACTOR_UNIT, values));
+                    columns.push(column(name, STRUCTURE_FACTOR_UNIT, values, None));
                 }
                 format!("{n} points along {axis}")
             }

@@ -54,6 +54,17 @@ fn error_at(source: &str, kind: ErrorKind, span: Span, message: impl Into<String
     CellError::from_problems(source, &[Problem::new(kind, span, message)])
 }
 
+/// A column of a command's result table: measured, not derived from other columns.
+fn column(name: &str, unit: &str, values: Vec<f64>, errors: Option<Vec<f64>>) -> Column {
+    Column {
+        name: name.to_string(),
+        unit: unit.to_string(),
+        values,
+        errors,
+        derived_from: None,
+    }
+}
+
 impl Runner<'_> {
     /// A runtime error at `span` of this cell.
     fn runtime(&self, span: Span, message: impl Into<String>) -> CellError {

@@ -29,7 +29,7 @@ use icefield_stdlib::monopoles::{
 };
 use icefield_stdlib::rng::{splitmix64_mix, RngStreams};
 
-use super::{error_at, Runner, PROGRESS_INTERVAL};
+use super::{column, error_at, Runner, PROGRESS_INTERVAL};
 use crate::ast::Span;
 use crate::check::monopoles::{
     Background, ClusterSpec, MonopolesSpec, Preparation, ReachSpec, TrackSpec, GATE_TABLE_SUFFIX,
@@ -39,7 +39,7 @@ use crate::display;
 use crate::plan::GeneralModel;
 use crate::units::format_number;
 use crate::workspace::{
-    Column, DynamicsDecl, ExecutionChoice, Figure, FigureSeries, Model, Provenance, Table,
+    DynamicsDecl, ExecutionChoice, Figure, FigureSeries, Model, Provenance, Table,
     TransverseSource, Value, DEFAULT_SEED,
 };
 use crate::Output;
@@ -269,16 +269,6 @@ fn describe_preparation(preparation: &Preparation, temperature_kelvin: f64) -> S
 
 fn seconds(value: f64) -> String {
     format!("{} s", format_number(value))
-}
-
-fn column(name: &str, unit: &str, values: Vec<f64>, errors: Option<Vec<f64>>) -> Column {
-    Column {
-        name: name.to_string(),
-        unit: unit.to_string(),
-        values,
-        errors,
-        derived_from: None,
-    }
 }
 
 impl Runner<'_> {

@@ -28,7 +28,7 @@ use icefield_stdlib::percolation::{
 use icefield_stdlib::rng::RngStreams;
 use icefield_stdlib::spectra::{welch_psd, WelchSettings};
 
-use super::{Runner, PROGRESS_INTERVAL};
+use super::{column, Runner, PROGRESS_INTERVAL};
 use crate::ast::Span;
 use crate::check::percolation::{
     displacement_unit, squared_unit, ClustersSpec, GrowthSpec, Occupation, OpenHopsSpec,
@@ -38,9 +38,7 @@ use crate::diagnostic::{CellError, ErrorKind, Problem};
 use crate::display;
 use crate::plan::GeneralModel;
 use crate::units::format_number;
-use crate::workspace::{
-    Column, Figure, FigureSeries, Model, Provenance, Table, Value, DEFAULT_SEED,
-};
+use crate::workspace::{Figure, FigureSeries, Model, Provenance, Table, Value, DEFAULT_SEED};
 use crate::Output;
 use icefield_stdlib::scan::coupling_table;
 
@@ -84,16 +82,6 @@ fn kind_name(kind: PercolationKind) -> &'static str {
     match kind {
         PercolationKind::Bond => "bond",
         PercolationKind::Site => "site",
-    }
-}
-
-fn column(name: &str, unit: &str, values: Vec<f64>, errors: Option<Vec<f64>>) -> Column {
-    Column {
-        name: name.to_string(),
-        unit: unit.to_string(),
-        values,
-        errors,
-        derived_from: None,
     }
 }
 
@@ -229,6 +217,28 @@ impl Runner<'_> {
             cell: self.cell,
             kinetics: None,
         }
+    }
+
+    /// Stores a result table (under its own name) and the table beside it; a run the user
+    /// interrupted shows the table it kept and stops the cell with `kept`, what it kept.
+    fn keep_tables(
+        &mut self,
+        table: &Table,
+        beside: Option<(&str, Table)>,
+        keyword: Span,
+        kept: Option<String>,
+        emit: &mut dyn FnMut(Output),
+    ) -> Result<(), CellError> {
+        self.workspace
+            .insert(&table.name, Value::Table(table.clone()));
+        if let Some((name, beside)) = beside {
+            self.workspace.insert(name, Value::Table(beside));
+        }
+        if let Some(kept) = kept {
+            emit(Output::Display(display::table(table, None)));
+            return Err(self.interrupted(keyword, kept));
+        }
+        Ok(())
     }
 
     fn graph(
@@ -394,22 +404,16 @@ impl Runner<'_> {
             ],
             provenance: Some(self.provenance(source, lattice, seed, sweeps_done, interrupted)),
         };
-        self.workspace
-            .insert(&spec.target, Value::Table(table.clone()));
-        self.workspace.insert(&pc_name, Value::Table(pc_table));
-        if interrupted {
-            emit(Output::Display(display::table(&table, None)));
-            return Err(self.interrupted(
-                keyword,
-                format!(
-                    "interrupted: kept {} of {} sizes ({} sweeps or more each) in `{}` and `{pc_name}`",
-                    runs.len(),
-                    spec.sizes.len(),
-                    sweeps_done,
-                    spec.target
-                ),
-            ));
-        }
+        let kept = interrupted.then(|| {
+            format!(
+                "interrupted: kept {} of {} sizes ({} sweeps or more each) in `{}` and `{pc_name}`",
+                runs.len(),
+                spec.sizes.len(),
+                sweeps_done,
+                spec.target
+            )
+        });
+        self.keep_tables(&table, Some((&pc_name, pc_table)), keyword, kept, emit)?;
         let mut text = format!(
             "{}: {} percolation on the {} lattice, L = {}, {} sweeps each, in {:.1} s\n",
             spec.target,
@@ -583,19 +587,13 @@ impl Runner<'_> {
                 interrupted,
             )),
         };
-        self.workspace
-            .insert(&spec.target, Value::Table(table.clone()));
-        self.workspace.insert(&stats_name, Value::Table(stats));
-        if interrupted {
-            emit(Output::Display(display::table(&table, None)));
-            return Err(self.interrupted(
-                keyword,
-                format!(
-                    "interrupted: kept the cluster sizes of {done} of {} realisations in `{}`",
-                    spec.realisations, spec.target
-                ),
-            ));
-        }
+        let kept = interrupted.then(|| {
+            format!(
+                "interrupted: kept the cluster sizes of {done} of {} realisations in `{}`",
+                spec.realisations, spec.target
+            )
+        });
+        self.keep_tables(&table, Some((&stats_name, stats)), keyword, kept, emit)?;
         let xi = point.map(|p| p.correlation_length).unwrap_or(f64::NAN);
         emit(Output::Stream {
             text: format!(
@@ -759,19 +757,13 @@ impl Runner<'_> {
             ],
             provenance: Some(self.provenance(source, lattice, seed, 0, interrupted)),
         };
-        self.workspace
-            .insert(&spec.target, Value::Table(table.clone()));
-        self.workspace.insert(&fit_name, Value::Table(fit_table));
-        if interrupted {
-            emit(Output::Display(display::table(&table, None)));
-            return Err(self.interrupted(
-                keyword,
-                format!(
-                    "interrupted: kept {} seeds in `{}` and the fit in `{fit_name}`",
-                    growth.seeds, spec.target
-                ),
-            ));
-        }
+        let kept = interrupted.then(|| {
+            format!(
+                "interrupted: kept {} seeds in `{}` and the fit in `{fit_name}`",
+                growth.seeds, spec.target
+            )
+        });
+        self.keep_tables(&table, Some((&fit_name, fit_table)), keyword, kept, emit)?;
         let mut text = format!(
             "{}: chemical-distance growth on the {} lattice, L = {}, {} percolation at p = {} ({} seeds)\n",
             spec.target,
@@ -1015,19 +1007,13 @@ impl Runner<'_> {
             ],
             provenance: Some(self.provenance(source, lattice, seed, spec.steps, interrupted)),
         };
-        self.workspace
-            .insert(&spec.target, Value::Table(table.clone()));
-        self.workspace.insert(&psd_name, Value::Table(psd_table));
-        if interrupted {
-            emit(Output::Display(display::table(&table, None)));
-            return Err(self.interrupted(
-                keyword,
-                format!(
-                    "interrupted: kept {} walkers on the cluster and {} on the full lattice in `{}` and `{psd_name}`",
-                    done[0], done[1], spec.target
-                ),
-            ));
-        }
+        let kept = interrupted.then(|| {
+            format!(
+                "interrupted: kept {} walkers on the cluster and {} on the full lattice in `{}` and `{psd_name}`",
+                done[0], done[1], spec.target
+            )
+        });
+        self.keep_tables(&table, Some((&psd_name, psd_table)), keyword, kept, emit)?;
         let last = samples - 1;
         emit(Output::Stream {
             text: format!(
@@ -1267,19 +1253,14 @@ impl Runner<'_> {
                 kinetics: None,
             }),
         };
-        self.workspace
-            .insert(&spec.target, Value::Table(result.clone()));
-        if interrupted {
-            emit(Output::Display(display::table(&result, None)));
-            return Err(self.interrupted(
-                keyword,
-                format!(
-                    "interrupted: kept {} states in `{}`",
-                    rows.len(),
-                    spec.target
-                ),
-            ));
-        }
+        let kept = interrupted.then(|| {
+            format!(
+                "interrupted: kept {} states in `{}`",
+                rows.len(),
+                spec.target
+            )
+        });
+        self.keep_tables(&result, None, keyword, kept, emit)?;
         let mut text = format!(
             "{}: open hop directions under the dynamics rule ({}), {} states per temperature; diamond bond p_c = {}\n",
             spec.target,
