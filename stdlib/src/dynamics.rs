@@ -64,7 +64,10 @@ pub use dipolar::{
 };
 pub use exchange_flips::ExchangeFlipEnergy;
 use exponential::ExponentialZiggurat;
-pub use protocol::{run_kinetics, KineticsModel, KineticsResult, KineticsSettings, Protocol};
+pub use protocol::{
+    run_kinetics, KineticsModel, KineticsResult, KineticsSettings, Protocol,
+    EQUILIBRATION_PROGRESS_LABEL, PREPARATION_PROGRESS_LABEL,
+};
 pub use recording::{choose_execution, KineticEngine, REJECTION_FREE_BELOW_ACCEPTANCE};
 use state::KineticState;
 

@@ -513,3 +513,45 @@ fn the_acceptance_auto_reads_is_the_fraction_of_attempts_accepted() {
         "predicted {predicted}, measured {measured}"
     );
 }
+
+#[test]
+fn equilibration_and_preparation_report_progress() {
+    // A long equilibration or preparation must show how far it is (the
+    // notebook shows these before the first sample); the last report of
+    // each says it is complete.
+    use icefield_stdlib::control::Progress;
+    use icefield_stdlib::dynamics::{EQUILIBRATION_PROGRESS_LABEL, PREPARATION_PROGRESS_LABEL};
+    use std::sync::Mutex;
+    let seen: Mutex<Vec<Progress>> = Mutex::new(Vec::new());
+    let collect = |p: &Progress| seen.lock().unwrap().push(p.clone());
+    let settings = KineticsSettings {
+        cells_per_side: 2,
+        model: KineticsModel::dipolar(Some(dy_like_exchange()), 1.41),
+        field: Some(field()),
+        temperature_kelvin: 1.5,
+        rule: AcceptanceRule::Metropolis,
+        attempt_times: AttemptTimes::uniform(1.0).unwrap(),
+        transverse_from_dipolar_sum: None,
+        execution: None,
+        protocol: Protocol::FieldQuench {
+            preparation_seconds: 20.0,
+        },
+        start: Start::Random,
+        equilibration_sweeps: 50,
+        duration_seconds: 10.0,
+        sample_interval_seconds: 1.0,
+        projection_axis: None,
+        seed: 3,
+    };
+    let result = run_kinetics(&settings, &Interrupt::new(), &collect).unwrap();
+    assert_eq!(result.trajectory.times_seconds.len(), 11);
+    let seen = seen.into_inner().unwrap();
+    let last = |label: &str| {
+        seen.iter()
+            .filter(|p| p.label == label)
+            .map(|p| (p.done, p.total))
+            .last()
+    };
+    assert_eq!(last(EQUILIBRATION_PROGRESS_LABEL), Some((50, 50)));
+    assert_eq!(last(PREPARATION_PROGRESS_LABEL), Some((100, 100)));
+}

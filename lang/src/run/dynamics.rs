@@ -13,7 +13,7 @@ use std::time::{Duration, Instant};
 use icefield_stdlib::control::{Interrupt, Progress};
 use icefield_stdlib::dynamics::{
     run_kinetics, Execution, KineticsModel, KineticsResult, KineticsSettings, Protocol,
-    ZeemanField as KineticsField,
+    ZeemanField as KineticsField, EQUILIBRATION_PROGRESS_LABEL, PREPARATION_PROGRESS_LABEL,
 };
 use icefield_stdlib::gating::{
     AttemptTimes, TransverseRateLaw, GATE_CLASS_COUNT, GATE_CLASS_MAGNITUDES,
@@ -541,7 +541,14 @@ fn describe_time_left(left: Duration) -> String {
 
 fn progress_label(spec: &ProtocolSpec, progress: &Progress, left: Option<Duration>) -> String {
     let identity = format!("{}: {}", spec.target, spec.keyword);
-    let detail = if progress.done == 0 {
+    let detail = if progress.label == EQUILIBRATION_PROGRESS_LABEL {
+        format!(
+            "equilibrating: {} of {} sweeps",
+            progress.done, progress.total
+        )
+    } else if progress.label == PREPARATION_PROGRESS_LABEL {
+        format!("preparing: {} %", progress.done)
+    } else if progress.done == 0 {
         "equilibrating and preparing".to_string()
     } else {
         let t = (progress.done - 1) as f64 * spec.sample_interval_seconds;
@@ -573,10 +580,18 @@ fn run_with_time_left(
     };
     let mut time_left = TimeLeft::default();
     let mut forward = |p: Progress, emit: &mut dyn FnMut(Output)| {
-        let left = time_left.estimate(&p, Instant::now());
+        // Equilibration and preparation come before the first sample: the bar stays at
+        // zero samples and the label says how far they are.
+        let before_recording =
+            p.label == EQUILIBRATION_PROGRESS_LABEL || p.label == PREPARATION_PROGRESS_LABEL;
+        let left = if before_recording {
+            None
+        } else {
+            time_left.estimate(&p, Instant::now())
+        };
         emit(Output::Progress(Progress {
             label: progress_label(spec, &p, left),
-            done: p.done,
+            done: if before_recording { 0 } else { p.done },
             total: spec.samples,
         }));
     };

@@ -13,7 +13,7 @@ use super::{
     ExchangeFlipEnergy, Execution, KineticEngine, Kinetics, KineticsError,
     NearestNeighbourFlipEnergy, Trajectory, ZeemanField,
 };
-use crate::control::{Interrupt, ProgressFn};
+use crate::control::{Interrupt, Progress, ProgressFn};
 use crate::couplings::CouplingTable;
 use crate::engine::{FlipRule, LocalFieldSampler};
 use crate::ewald::{DipolarInteraction, DEFAULT_EWALD_ACCURACY};
@@ -24,6 +24,12 @@ use crate::lattice::Pyrochlore;
 use crate::metropolis::{initial_configuration, NearestNeighbourMetropolis, Start};
 use crate::rng::{RngStreams, SpinRng};
 use serde::{Deserialize, Serialize};
+
+/// Progress label of the equilibration sweeps before a run (done/total in sweeps).
+pub const EQUILIBRATION_PROGRESS_LABEL: &str = "kinetics: equilibration sweeps";
+/// Progress label of a protocol's preparation (done/total in hundredths of it).
+pub const PREPARATION_PROGRESS_LABEL: &str = "kinetics: preparation (hundredths)";
+const PREPARATION_STEPS: u64 = 100;
 
 /// What is done before the recording starts at t = 0.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
@@ -232,6 +238,7 @@ fn prepared_configuration(
     start_temperature_kelvin: f64,
     streams: &RngStreams,
     interrupt: &Interrupt,
+    progress: ProgressFn<'_>,
 ) -> Result<(Vec<i8>, bool), KineticsError> {
     let mut start_rng = streams.stream(0);
     let sigma = initial_configuration(lat, settings.start, &mut start_rng);
@@ -239,6 +246,16 @@ fn prepared_configuration(
         return Ok((sigma, false));
     }
     let sweeps = settings.equilibration_sweeps;
+    let report_every = (sweeps / 100).max(1);
+    let report = |done: u64| {
+        if done.is_multiple_of(report_every) {
+            progress(&Progress {
+                label: EQUILIBRATION_PROGRESS_LABEL.to_string(),
+                done,
+                total: sweeps,
+            });
+        }
+    };
     match (&settings.model, table) {
         (KineticsModel::NearestNeighbour(model), _) => {
             let mut eq = NearestNeighbourMetropolis::from_configuration(
@@ -254,6 +271,7 @@ fn prepared_configuration(
                     return Ok((eq.sigma().to_vec(), true));
                 }
                 eq.sweep();
+                report(k + 1);
             }
             Ok((eq.sigma().to_vec(), false))
         }
@@ -268,11 +286,12 @@ fn prepared_configuration(
             )
             .expect("table and configuration are built for this lattice");
             // Dense tables cost O(N) per accepted flip: poll every sweep.
-            for _ in 0..sweeps {
+            for k in 0..sweeps {
                 if interrupt.is_requested() {
                     return Ok((eq.sigma().to_vec(), true));
                 }
                 eq.sweep();
+                report(k + 1);
             }
             Ok((eq.sigma().to_vec(), false))
         }
@@ -307,6 +326,7 @@ pub fn run_kinetics(
                 plan.start_temperature_kelvin,
                 &streams,
                 interrupt,
+                progress,
             )?;
             let mut engine = discrete_engine(&lat, with_field, sigma, settings, &plan, engine_rng)?;
             drive(
@@ -330,6 +350,7 @@ pub fn run_kinetics(
                 plan.start_temperature_kelvin,
                 &streams,
                 interrupt,
+                progress,
             )?;
             drop(table);
             let mut engine = discrete_engine(&lat, with_field, sigma, settings, &plan, engine_rng)?;
@@ -404,6 +425,7 @@ fn local_field_run(
         plan.start_temperature_kelvin,
         streams,
         interrupt,
+        progress,
     )?;
     let mut engine = DipolarKinetics::new(
         lat,
@@ -467,7 +489,19 @@ fn drive<'a, K: KineticEngine<'a>>(
         None => choose_execution(engine),
     };
     if !interrupted && plan.preparation_seconds > 0.0 {
-        interrupted = !engine.run_for(plan.preparation_seconds, execution, interrupt)?;
+        // In hundredths, so a long preparation shows progress too.
+        let chunk = plan.preparation_seconds / PREPARATION_STEPS as f64;
+        for k in 1..=PREPARATION_STEPS {
+            if !engine.run_for(chunk, execution, interrupt)? {
+                interrupted = true;
+                break;
+            }
+            progress(&Progress {
+                label: PREPARATION_PROGRESS_LABEL.to_string(),
+                done: k,
+                total: PREPARATION_STEPS,
+            });
+        }
     }
     if plan.quench {
         switch_field_off(engine);
