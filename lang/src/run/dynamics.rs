@@ -162,7 +162,7 @@ impl Runner<'_> {
     /// |h⊥|/|g| means for the six-neighbour classes); the bimodal preset becomes a step
     /// at x = 1, half-way between the closed class (0) and the smallest open one (2).
     /// `None` for uniform rates, where h⊥ does not matter.
-    fn transverse_rate_law(
+    pub(super) fn transverse_rate_law(
         &mut self,
         dynamics: &DynamicsDecl,
         keyword: Span,

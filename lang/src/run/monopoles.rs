@@ -14,9 +14,12 @@ use std::time::Instant;
 use icefield_stdlib::control::Progress;
 use icefield_stdlib::couplings::CouplingTable;
 use icefield_stdlib::dynamics::{
-    AcceptanceRule, Execution, KineticEngine, Kinetics, NearestNeighbourFlipEnergy, ZeemanField,
+    choose_execution, nearest_neighbour_transverse_field_kelvin, AcceptanceRule, DipolarGating,
+    DipolarKinetics, ExchangeFlipEnergy, Execution, KineticEngine, Kinetics, KineticsError,
+    NearestNeighbourFlipEnergy, ZeemanField,
 };
 use icefield_stdlib::engine::{FlipRule, LocalFieldSampler};
+use icefield_stdlib::ewald::{DipolarInteraction, DEFAULT_EWALD_ACCURACY};
 use icefield_stdlib::exchange::{CouplingConvention, ExchangeCouplings};
 use icefield_stdlib::gating::{GATE_CLASS_COUNT, GATE_CLASS_MAGNITUDES};
 use icefield_stdlib::hamiltonian::{charge, NearestNeighbourIce};
@@ -65,6 +68,10 @@ const STREAM_PAIRS: u64 = 3;
 struct KineticModel<'m> {
     cells_per_side: usize,
     j_eff_kelvin: f64,
+    /// Exchange shells of a general model (`couplings exchange`).
+    exchange: Option<ExchangeCouplings>,
+    /// D (K) of a general model (`couplings dipolar`).
+    dipolar_kelvin: Option<f64>,
     /// The declared field for the kinetics (`None` without a field or for B = 0).
     field: Option<ZeemanField>,
     /// The declared field for the equilibration engine.
@@ -302,15 +309,6 @@ impl Runner<'_> {
                 format!("`{what}` needs a lattice and couplings declared first"),
             );
         };
-        if !couplings.is_nearest() {
-            return fail(
-                ErrorKind::NotImplemented,
-                format!(
-                    "`{what}` runs the nearest-neighbour model (`couplings nearest`, with an optional field) only; \
-                     the monopole kinetics of exchange shells beyond J1 and of dipolar sums are not in this version"
-                ),
-            );
-        }
         let Some(dynamics) = &model.dynamics else {
             return Err(CellError::from_problems(
                 self.source,
@@ -326,12 +324,12 @@ impl Runner<'_> {
                 )],
             ));
         };
-        if dynamics.transverse == TransverseSource::Dipolar {
+        if dynamics.transverse == TransverseSource::Dipolar && what != "monopoles" {
             return fail(
                 ErrorKind::NotImplemented,
                 format!(
-                    "`{what}` gates spins by their six nearest neighbours only; the dipolar transverse-field \
-                     what-if is not offered for monopoles in this version"
+                    "`{what}` judges open spins by the six-neighbour gate classes; the dipolar \
+                     transverse-field what-if is offered for `monopoles` and `evolve` only in this version"
                 ),
             );
         }
@@ -361,6 +359,8 @@ impl Runner<'_> {
         Ok(KineticModel {
             cells_per_side: lattice.cells_per_side,
             j_eff_kelvin: couplings.j_eff_kelvin,
+            exchange: couplings.exchange,
+            dipolar_kelvin: couplings.dipolar_kelvin,
             field,
             zeeman,
             dynamics,
@@ -425,15 +425,18 @@ impl Runner<'_> {
         preparation: &Preparation,
         keyword: Span,
     ) -> Result<Option<CouplingTable>, CellError> {
-        if km.zeeman.is_none() && preparation.loops_per_sweep == 0 {
+        let nearest = km.exchange.is_none() && km.dipolar_kelvin.is_none();
+        if nearest && km.zeeman.is_none() && preparation.loops_per_sweep == 0 {
             return Ok(None);
         }
         let general = GeneralModel {
-            exchange: Some(ExchangeCouplings::nearest_neighbour(
-                km.j_eff_kelvin,
-                CouplingConvention::IsingPseudospins,
-            )),
-            dipolar_kelvin: None,
+            exchange: km.exchange.or(nearest.then(|| {
+                ExchangeCouplings::nearest_neighbour(
+                    km.j_eff_kelvin,
+                    CouplingConvention::IsingPseudospins,
+                )
+            })),
+            dipolar_kelvin: km.dipolar_kelvin,
             zeeman: km.zeeman,
             direction: None,
             rule: FlipRule::Metropolis,
@@ -517,62 +520,124 @@ impl Runner<'_> {
                 ));
             }
         }
-        let energy = NearestNeighbourFlipEnergy::new(
-            &NearestNeighbourIce::new(km.j_eff_kelvin),
-            km.field.as_ref(),
-        )
-        .ok_or_else(|| {
-            self.runtime(
-                keyword,
-                "the field needs a non-zero direction and finite values",
-            )
-        })?;
         let decl = km.dynamics;
-        let (execution, execution_text) = execution(decl.execution);
-        let mut engine = Kinetics::new(
-            &lat,
-            energy,
-            sigma,
-            decl.acceptance,
-            t,
-            decl.attempt_times.clone(),
-            streams.stream(STREAM_KINETICS),
-        )
-        .map_err(|e| self.runtime(keyword, e.to_string()))?;
+        let transverse = match decl.transverse {
+            TransverseSource::Neighbours => None,
+            TransverseSource::Dipolar => self.transverse_rate_law(decl, keyword, emit)?,
+        };
+        // Dipolar models, and every model under the transverse what-if, run on the
+        // local-field engine; its tables outlive the tracking (the tracker borrows them).
+        let local_field = km.dipolar_kelvin.is_some() || transverse.is_some();
+        let table = if local_field {
+            let nearest = km.exchange.is_none() && km.dipolar_kelvin.is_none();
+            let pairs = GeneralModel {
+                exchange: km.exchange.or(nearest.then(|| {
+                    ExchangeCouplings::nearest_neighbour(
+                        km.j_eff_kelvin,
+                        CouplingConvention::IsingPseudospins,
+                    )
+                })),
+                dipolar_kelvin: km.dipolar_kelvin,
+                zeeman: None,
+                direction: None,
+                rule: FlipRule::Metropolis,
+                loops_per_sweep: 0,
+                ladder: Default::default(),
+            };
+            Some(coupling_table(&lat, &pairs).map_err(|e| self.runtime(keyword, e.to_string()))?)
+        } else {
+            None
+        };
+        let field_tables = match &transverse {
+            Some(_) => Some(
+                DipolarInteraction {
+                    d_kelvin: 1.0,
+                    accuracy: DEFAULT_EWALD_ACCURACY,
+                }
+                .field_tables(&lat)
+                .map_err(|e| self.runtime(keyword, e.to_string()))?,
+            ),
+            None => None,
+        };
+        let rng = streams.stream(STREAM_KINETICS);
+        let fail = |e: KineticsError| self.runtime(keyword, e.to_string());
+        let tracked = match (&km.exchange, &table) {
+            (None, None) => {
+                let energy = NearestNeighbourFlipEnergy::new(
+                    &NearestNeighbourIce::new(km.j_eff_kelvin),
+                    km.field.as_ref(),
+                )
+                .ok_or(KineticsError::InvalidField)
+                .map_err(fail)?;
+                let mut engine = Kinetics::new(
+                    &lat,
+                    energy,
+                    sigma,
+                    decl.acceptance,
+                    t,
+                    decl.attempt_times.clone(),
+                    rng,
+                )
+                .map_err(fail)?;
+                self.track_engine(&mut engine, spec, decl.execution, &mut throttle, emit)
+            }
+            (Some(exchange), None) => {
+                let energy =
+                    ExchangeFlipEnergy::new(&lat, exchange, km.field.as_ref()).map_err(fail)?;
+                let mut engine = Kinetics::new(
+                    &lat,
+                    energy,
+                    sigma,
+                    decl.acceptance,
+                    t,
+                    decl.attempt_times.clone(),
+                    rng,
+                )
+                .map_err(fail)?;
+                self.track_engine(&mut engine, spec, decl.execution, &mut throttle, emit)
+            }
+            (_, Some(table)) => {
+                let gating = match (&transverse, &field_tables) {
+                    (Some(law), Some(tables)) => DipolarGating::FullDipolarSum {
+                        field_tables: tables,
+                        unit_kelvin: nearest_neighbour_transverse_field_kelvin(&lat, 1.0),
+                        law: law.clone(),
+                    },
+                    _ => DipolarGating::NeighbourClasses(decl.attempt_times.clone()),
+                };
+                let single = match &km.field {
+                    Some(f) => f
+                        .sublattice_energy_kelvin()
+                        .ok_or(KineticsError::InvalidField)
+                        .map_err(fail)?
+                        .map(|e| -e),
+                    None => [0.0; 4],
+                };
+                let mut engine = DipolarKinetics::new(
+                    &lat,
+                    table,
+                    single,
+                    gating,
+                    sigma,
+                    decl.acceptance,
+                    t,
+                    rng,
+                )
+                .map_err(fail)?;
+                self.track_engine(&mut engine, spec, decl.execution, &mut throttle, emit)
+            }
+        };
+        let Tracked {
+            times,
+            distinct,
+            counts,
+            hops,
+            tracker,
+            interrupted,
+            execution_text,
+        } = tracked;
         let dt = spec.sample_interval_seconds;
         let samples = (spec.duration_seconds / dt * (1.0 + 1e-12)).floor() as usize + 1;
-        let mut tracker = MonopoleTracker::new(&lat, engine.sigma());
-        let initial = tracker.records().len();
-        let mut times = Vec::with_capacity(samples);
-        let mut distinct = Vec::with_capacity(samples);
-        let mut counts = Vec::with_capacity(samples);
-        let mut hops = Vec::with_capacity(samples);
-        let mut interrupted = false;
-        let label = format!(
-            "{}: monopole tracking (samples of simulated time)",
-            spec.target
-        );
-        'grid: for k in 0..samples {
-            if k > 0 {
-                let target = k as f64 * dt;
-                loop {
-                    if self.interrupt.is_requested() {
-                        interrupted = true;
-                        break 'grid;
-                    }
-                    if engine.advance(target, execution, STEPS_PER_POLL, &mut tracker) {
-                        break;
-                    }
-                    throttle.report(emit, &label, k as u64, samples as u64);
-                }
-            }
-            tracker.sample(k);
-            times.push(k as f64 * dt);
-            distinct.push(mean_distinct_sites(&tracker, initial));
-            counts.push(engine.monopole_count() as f64);
-            hops.push(tracker.hop_count() as f64);
-            throttle.report(emit, &label, k as u64 + 1, samples as u64);
-        }
         let kept = times.len();
         let history = tracker.into_history(times.clone(), interrupted);
         let mut msd = vec![0.0];
@@ -593,7 +658,11 @@ impl Runner<'_> {
             format_number(t),
             seconds(dt),
             acceptance_name(decl.acceptance),
-            decl.rates_description,
+            if decl.transverse == TransverseSource::Dipolar {
+                format!("{}, h⊥ from the dipolar sum", decl.rates_description)
+            } else {
+                decl.rates_description.clone()
+            },
             history.hops,
             if exposure > 0.0 {
                 format!(
@@ -1008,17 +1077,85 @@ fn values_last(table: &Table) -> f64 {
         .unwrap_or(0.0)
 }
 
-fn execution(choice: ExecutionChoice) -> (Execution, &'static str) {
-    match choice {
-        // The nearest-neighbour model (with a field) has discrete energy changes, where the
-        // rejection-free execution (Bortz, Kalos & Lebowitz, J. Comput. Phys. 17, 10 (1975))
-        // simulates the same process far faster at low temperature.
-        ExecutionChoice::Auto => (
-            Execution::RejectionFree,
-            "rejection-free execution (chosen: the energy changes are discrete)",
-        ),
-        ExecutionChoice::AttemptBased => (Execution::AttemptBased, "attempt-based execution"),
-        ExecutionChoice::RejectionFree => (Execution::RejectionFree, "rejection-free execution"),
+/// What one tracking run recorded.
+struct Tracked<'l> {
+    times: Vec<f64>,
+    distinct: Vec<f64>,
+    counts: Vec<f64>,
+    hops: Vec<f64>,
+    tracker: MonopoleTracker<'l>,
+    interrupted: bool,
+    execution_text: String,
+}
+
+impl Runner<'_> {
+    /// Tracks monopoles on any engine over the spec's time grid, with progress and
+    /// interrupt between chunks; `auto` asks the engine which execution pays.
+    fn track_engine<'l, K: KineticEngine<'l>>(
+        &self,
+        engine: &mut K,
+        spec: &TrackSpec,
+        choice: ExecutionChoice,
+        throttle: &mut Throttle,
+        emit: &mut dyn FnMut(Output),
+    ) -> Tracked<'l> {
+        let (execution, execution_text) = match choice {
+            ExecutionChoice::Auto => {
+                let (execution, why) = choose_execution(engine);
+                (execution, format!("{why} (chosen by `execution = auto`)"))
+            }
+            ExecutionChoice::AttemptBased => (
+                Execution::AttemptBased,
+                "attempt-based execution".to_string(),
+            ),
+            ExecutionChoice::RejectionFree => (
+                Execution::RejectionFree,
+                "rejection-free execution".to_string(),
+            ),
+        };
+        let dt = spec.sample_interval_seconds;
+        let samples = (spec.duration_seconds / dt * (1.0 + 1e-12)).floor() as usize + 1;
+        let mut tracker = MonopoleTracker::new(engine.lattice(), engine.sigma());
+        let initial = tracker.records().len();
+        let mut times = Vec::with_capacity(samples);
+        let mut distinct = Vec::with_capacity(samples);
+        let mut counts = Vec::with_capacity(samples);
+        let mut hops = Vec::with_capacity(samples);
+        let mut interrupted = false;
+        let label = format!(
+            "{}: monopole tracking (samples of simulated time)",
+            spec.target
+        );
+        'grid: for k in 0..samples {
+            if k > 0 {
+                let target = k as f64 * dt;
+                loop {
+                    if self.interrupt.is_requested() {
+                        interrupted = true;
+                        break 'grid;
+                    }
+                    if engine.advance(target, execution, STEPS_PER_POLL, &mut tracker) {
+                        break;
+                    }
+                    throttle.report(emit, &label, k as u64, samples as u64);
+                }
+            }
+            tracker.sample(k);
+            times.push(k as f64 * dt);
+            distinct.push(mean_distinct_sites(&tracker, initial));
+            counts.push(engine.monopole_count() as f64);
+            hops.push(tracker.hop_count() as f64);
+            throttle.report(emit, &label, k as u64 + 1, samples as u64);
+        }
+        Tracked {
+            times,
+            distinct,
+            counts,
+            hops,
+            tracker,
+            interrupted,
+            execution_text,
+        }
     }
 }
 
