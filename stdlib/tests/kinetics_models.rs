@@ -550,7 +550,7 @@ fn equilibration_and_preparation_report_progress() {
         seen.iter()
             .filter(|p| p.label == label)
             .map(|p| (p.done, p.total))
-            .last()
+            .next_back()
     };
     assert_eq!(last(EQUILIBRATION_PROGRESS_LABEL), Some((50, 50)));
     assert_eq!(last(PREPARATION_PROGRESS_LABEL), Some((100, 100)));
