@@ -90,7 +90,8 @@ fn free_spins_under_metropolis_decorrelate_as_exp_minus_two_t_over_tau0() {
             "My",
             "Mz",
             "monopole_density",
-            "double_charge_density"
+            "double_charge_density",
+            "energy"
         ]
     );
     assert_eq!(noise.column("t").unwrap().unit, "s");

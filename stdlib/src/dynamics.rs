@@ -199,6 +199,8 @@ pub trait DiscreteFlipEnergy {
     /// Build caches for `state` (called when the engine starts or the
     /// energetics are replaced).
     fn attach(&mut self, _state: &SpinView<'_>) {}
+    /// Energy (K) of `state`, without constant terms; O(N), for sampling.
+    fn energy_kelvin(&self, state: &SpinView<'_>) -> f64;
     /// Spins beyond the six nearest neighbours whose class changes when
     /// `spin` flips (none for the nearest-neighbour model).
     #[inline(always)]
@@ -259,6 +261,23 @@ impl DiscreteFlipEnergy for NearestNeighbourFlipEnergy {
 
     #[inline(always)]
     fn after_flip(&mut self, _state: &SpinView<'_>, _spin: usize) {}
+
+    fn energy_kelvin(&self, state: &SpinView<'_>) -> f64 {
+        // Σ_⟨ij⟩ σσ over the bonds of one tetrahedron is (S_t² − 4)/2 (derived);
+        // every bond lies in exactly one tetrahedron.
+        let pairs: f64 = state
+            .tetrahedron_sums
+            .iter()
+            .map(|&s| ((s as i32 * s as i32 - 4) / 2) as f64)
+            .sum();
+        let zeeman: f64 = state
+            .sigma
+            .iter()
+            .enumerate()
+            .map(|(i, &s)| -(s as f64) * self.zeeman_kelvin[i & 3])
+            .sum();
+        self.j_eff_kelvin * pairs + zeeman
+    }
 }
 
 /// What an observer sees of one flip (the state is the one after it).
@@ -803,6 +822,10 @@ impl<'a, E: DiscreteFlipEnergy> KineticEngine<'a> for Kinetics<'a, E> {
         let total: f64 = (0..n).map(|i| self.flip_rate_per_second(i)).sum();
         (total * self.shortest_attempt_seconds / n as f64).min(1.0)
     }
+
+    fn energy_kelvin(&self) -> f64 {
+        self.energy.energy_kelvin(&self.state.view(self.lat))
+    }
 }
 
 impl Buckets {
@@ -893,6 +916,11 @@ pub struct Trajectory {
     pub monopole_count: Vec<u64>,
     /// Tetrahedra with |Q| = 2 per sample.
     pub double_charge_count: Vec<u64>,
+    /// Energy (K, without constant terms: the self-image part of an Ewald
+    /// sum) per sample, of the Hamiltonian running at that time (after a
+    /// quench: without the field).
+    #[serde(default)]
+    pub energy_kelvin: Vec<f64>,
     /// N.
     pub spin_count: usize,
     /// Flips during the recording.

@@ -555,3 +555,128 @@ fn equilibration_and_preparation_report_progress() {
     assert_eq!(last(EQUILIBRATION_PROGRESS_LABEL), Some((50, 50)));
     assert_eq!(last(PREPARATION_PROGRESS_LABEL), Some((100, 100)));
 }
+
+#[test]
+fn recorded_energies_equal_the_direct_pair_sum() {
+    // The energy column of every engine against E(σ) summed pair by pair over
+    // the coupling table (`CouplingTable::direct_energy_kelvin`, an
+    // independent O(N²) sum) without its constant self-image part; exact up
+    // to rounding.
+    let lat = Pyrochlore::new(2).unwrap();
+    let nearest = ExchangeCouplings::nearest_neighbour(1.1, CouplingConvention::IsingPseudospins);
+    let check = |name: &str,
+                 table: &CouplingTable,
+                 trajectory: &icefield_stdlib::dynamics::Trajectory,
+                 sigma: &[i8]| {
+        let direct = table.direct_energy_kelvin(sigma) - table.constant_energy_kelvin();
+        let recorded = *trajectory.energy_kelvin.last().unwrap();
+        assert_eq!(
+            trajectory.energy_kelvin.len(),
+            trajectory.times_seconds.len()
+        );
+        assert!(
+            (recorded - direct).abs() < 1e-8 * (1.0 + direct.abs()),
+            "{name}: recorded {recorded} K, direct {direct} K"
+        );
+    };
+    // Nearest-neighbour engine with a field.
+    let table = table_with_field(&lat, &nearest);
+    let mut rng = RngStreams::new(21).stream(0);
+    let sigma = initial_configuration(&lat, Start::Random, &mut rng);
+    let mut nn = Kinetics::new(
+        &lat,
+        icefield_stdlib::dynamics::NearestNeighbourFlipEnergy::new(
+            &icefield_stdlib::hamiltonian::NearestNeighbourIce::new(1.1),
+            Some(&field()),
+        )
+        .unwrap(),
+        sigma,
+        AcceptanceRule::Metropolis,
+        1.5,
+        AttemptTimes::uniform(1.0).unwrap(),
+        rng,
+    )
+    .unwrap();
+    let tr = nn
+        .record(
+            20.0,
+            1.0,
+            Execution::RejectionFree,
+            [0.0, 0.0, 1.0],
+            &Interrupt::new(),
+            &ignore_progress,
+            &mut (),
+        )
+        .unwrap();
+    check("nearest-neighbour", &table, &tr, nn.sigma());
+    // Exchange-shell engine with a field.
+    let table = table_with_field(&lat, &four_shells());
+    let mut rng = RngStreams::new(22).stream(0);
+    let sigma = initial_configuration(&lat, Start::Random, &mut rng);
+    let mut shells = Kinetics::new(
+        &lat,
+        ExchangeFlipEnergy::new(&lat, &four_shells(), Some(&field())).unwrap(),
+        sigma,
+        AcceptanceRule::Metropolis,
+        1.5,
+        AttemptTimes::uniform(1.0).unwrap(),
+        rng,
+    )
+    .unwrap();
+    let tr = shells
+        .record(
+            20.0,
+            1.0,
+            Execution::RejectionFree,
+            [0.0, 0.0, 1.0],
+            &Interrupt::new(),
+            &ignore_progress,
+            &mut (),
+        )
+        .unwrap();
+    check("exchange shells", &table, &tr, shells.sigma());
+    // Local-field engine: dipolar + J1 with the field as single-spin terms.
+    let mut pairs = CouplingTable::zero(&lat).unwrap();
+    dy_like_exchange().add_to(&lat, &mut pairs).unwrap();
+    DipolarInteraction {
+        d_kelvin: 1.41,
+        accuracy: DEFAULT_EWALD_ACCURACY,
+    }
+    .add_to(&lat, &mut pairs)
+    .unwrap();
+    let mut with_field = pairs.clone();
+    let f = field();
+    let b = f.unit_direction().unwrap().map(|c| c * f.field_tesla);
+    icefield_stdlib::exchange::ZeemanField {
+        field_tesla: b,
+        moment_bohr_magnetons: f.moment_bohr_magnetons,
+    }
+    .add_to(&mut with_field)
+    .unwrap();
+    let single = f.sublattice_energy_kelvin().unwrap().map(|e| -e);
+    let mut rng = RngStreams::new(23).stream(0);
+    let sigma = initial_configuration(&lat, Start::Random, &mut rng);
+    let mut dipolar = DipolarKinetics::new(
+        &lat,
+        &pairs,
+        single,
+        DipolarGating::NeighbourClasses(AttemptTimes::uniform(1.0).unwrap()),
+        sigma,
+        AcceptanceRule::Metropolis,
+        1.5,
+        rng,
+    )
+    .unwrap();
+    let tr = dipolar
+        .record(
+            20.0,
+            1.0,
+            Execution::RejectionFree,
+            [0.0, 0.0, 1.0],
+            &Interrupt::new(),
+            &ignore_progress,
+            &mut (),
+        )
+        .unwrap();
+    check("dipolar", &with_field, &tr, dipolar.sigma());
+}

@@ -66,6 +66,7 @@ pub const TIME_SERIES_COLUMNS: &[(&str, &str)] = &[
     ("Mz", "μ"),
     ("monopole_density", ""),
     ("double_charge_density", ""),
+    ("energy", "K"),
 ];
 
 /// A resolved dynamics command.

@@ -467,7 +467,7 @@ fn series_table(name: &str, result: &KineticsResult, provenance: Provenance) -> 
     let spins = trajectory.spin_count.max(1) as f64;
     let tetrahedra = spins / 2.0;
     let component = |c: usize| trajectory.magnetisation.iter().map(|m| m[c]).collect();
-    let values: [Vec<f64>; 7] = [
+    let values: [Vec<f64>; 8] = [
         trajectory.times_seconds.clone(),
         trajectory.magnetisation_projection.clone(),
         component(0),
@@ -482,6 +482,12 @@ fn series_table(name: &str, result: &KineticsResult, provenance: Provenance) -> 
             .double_charge_count
             .iter()
             .map(|&d| d as f64 / tetrahedra)
+            .collect(),
+        // Per spin, as the `energy` measure of a scan.
+        trajectory
+            .energy_kelvin
+            .iter()
+            .map(|&e| e / spins)
             .collect(),
     ];
     let columns = TIME_SERIES_COLUMNS

@@ -642,6 +642,18 @@ impl<'a> KineticEngine<'a> for DipolarKinetics<'a> {
         (total / (self.fastest_attempt_rate() * n as f64)).min(1.0)
     }
 
+    fn energy_kelvin(&self) -> f64 {
+        // ½ Σ σ h + Σ z σ: the pair energy from the cached fields, without the
+        // constant self-image term of the Ewald sum.
+        self.state
+            .sigma
+            .iter()
+            .zip(&self.field_kelvin)
+            .enumerate()
+            .map(|(i, (&s, &h))| s as f64 * (0.5 * h + self.single_kelvin[i & 3]))
+            .sum()
+    }
+
     fn rejection_free_pays_below(&self) -> f64 {
         DIPOLAR_THINNING_BELOW_ACCEPTANCE_TIMES_N / self.state.sigma.len() as f64
     }

@@ -254,6 +254,27 @@ impl DiscreteFlipEnergy for ExchangeFlipEnergy {
         }
     }
 
+    fn energy_kelvin(&self, state: &SpinView<'_>) -> f64 {
+        // ½ Σ_i σ_i h_i (each pair counted from both ends) + Σ_i z_a σ_i, with
+        // h_i decoded from the class key like the flip cost.
+        let mut total = 0.0;
+        for (i, (&key, &s)) in self.key.iter().zip(state.sigma).enumerate() {
+            let mut key = key as usize;
+            let mut h = 0.0;
+            for (z, k) in self
+                .partners_per_channel
+                .iter()
+                .zip(&self.coefficient_kelvin)
+            {
+                let radix = *z as usize + 1;
+                h += k * (2.0 * (key % radix) as f64 - *z as f64);
+                key /= radix;
+            }
+            total += s as f64 * (0.5 * h + self.single_spin_kelvin[i & 3]);
+        }
+        total
+    }
+
     #[inline(always)]
     fn further_partners(&self, spin: usize) -> &[u32] {
         let f = self.further_count;

@@ -52,6 +52,8 @@ pub trait KineticEngine<'a> {
     /// be accepted in the current state (`Σ_i r_i τ_min / N`): how much an
     /// attempt-based execution would waste, the input of [`choose_execution`].
     fn attempt_acceptance(&self) -> f64;
+    /// Energy (K) of the current state without constant terms (O(N)).
+    fn energy_kelvin(&self) -> f64;
     /// Attempt acceptance below which the rejection-free execution is the
     /// faster one for this engine (see [`choose_execution`]).
     fn rejection_free_pays_below(&self) -> f64 {
@@ -86,6 +88,7 @@ pub trait KineticEngine<'a> {
             magnetisation_projection: Vec::with_capacity(samples as usize),
             monopole_count: Vec::with_capacity(samples as usize),
             double_charge_count: Vec::with_capacity(samples as usize),
+            energy_kelvin: Vec::with_capacity(samples as usize),
             spin_count: self.sigma().len(),
             flips: 0,
             attempts: 0,
@@ -162,6 +165,7 @@ fn push_sample<'a, K: KineticEngine<'a> + ?Sized>(
     trajectory
         .double_charge_count
         .push(engine.double_charge_count());
+    trajectory.energy_kelvin.push(engine.energy_kelvin());
 }
 
 /// Below this attempt acceptance the rejection-free execution is chosen.
