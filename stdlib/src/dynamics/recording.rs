@@ -188,7 +188,7 @@ pub fn choose_execution<'a, K: KineticEngine<'a>>(engine: &K) -> (Execution, Str
                 "rejection-free: only {:.3} % of attempts would be accepted in the starting state \
                  (threshold {} %)",
                 100.0 * acceptance,
-                100.0 * threshold
+                percent(threshold)
             ),
         )
     } else {
@@ -198,8 +198,19 @@ pub fn choose_execution<'a, K: KineticEngine<'a>>(engine: &K) -> (Execution, Str
                 "attempt-based: {:.1} % of attempts would be accepted in the starting state \
                  (rejection-free pays off below {} %)",
                 100.0 * acceptance,
-                100.0 * threshold
+                percent(threshold)
             ),
         )
     }
+}
+
+/// A fraction as a percentage with three significant digits ("10", "0.146").
+fn percent(fraction: f64) -> String {
+    let p = 100.0 * fraction;
+    let decimals = if p >= 100.0 || p == 0.0 {
+        0
+    } else {
+        (2 - p.abs().log10().floor() as i32).max(0) as usize
+    };
+    format!("{p:.decimals$}")
 }
