@@ -443,19 +443,11 @@ impl<'a, E: DiscreteFlipEnergy> Kinetics<'a, E> {
         attempt_times: AttemptTimes,
         rng: SpinRng,
     ) -> Result<Self, KineticsError> {
-        if sigma.len() != lat.spin_count() || sigma.iter().any(|&s| s != 1 && s != -1) {
-            return Err(KineticsError::InvalidConfiguration {
-                expected_spins: lat.spin_count(),
-                given: sigma.len(),
-            });
-        }
-        if !(temperature_kelvin >= 0.0 && temperature_kelvin.is_finite()) {
-            return Err(KineticsError::InvalidTemperature(temperature_kelvin));
-        }
+        let state = KineticState::checked(lat, sigma, temperature_kelvin)?;
         attempt_times.validate()?;
         let mut engine = Self {
             lat,
-            state: KineticState::new(lat, sigma),
+            state,
             energy,
             exponential: Box::new(ExponentialZiggurat::new()),
             rule,

@@ -170,28 +170,20 @@ impl<'a> DipolarKinetics<'a> {
         temperature_kelvin: f64,
         rng: SpinRng,
     ) -> Result<Self, KineticsError> {
-        if sigma.len() != lat.spin_count() || sigma.iter().any(|&s| s != 1 && s != -1) {
-            return Err(KineticsError::InvalidConfiguration {
-                expected_spins: lat.spin_count(),
-                given: sigma.len(),
-            });
-        }
         if table.cells_per_side() != lat.cells_per_side() {
             return Err(KineticsError::InvalidConfiguration {
                 expected_spins: lat.spin_count(),
                 given: table.spin_count(),
             });
         }
-        if !(temperature_kelvin >= 0.0 && temperature_kelvin.is_finite()) {
-            return Err(KineticsError::InvalidTemperature(temperature_kelvin));
-        }
+        let state = KineticState::checked(lat, sigma, temperature_kelvin)?;
         if single_spin_kelvin.iter().any(|z| !z.is_finite()) {
             return Err(KineticsError::InvalidField);
         }
         let l = lat.cells_per_side();
         let sources = |row_of: &dyn Fn(usize) -> &'a [f64]| {
-            let mut field = vec![0.0; sigma.len()];
-            for (j, &s) in sigma.iter().enumerate() {
+            let mut field = vec![0.0; state.sigma.len()];
+            for (j, &s) in state.sigma.iter().enumerate() {
                 add_source_field(&mut field, row_of(j % 4), l, j, s as f64);
             }
             field
@@ -228,7 +220,7 @@ impl<'a> DipolarKinetics<'a> {
         Ok(Self {
             lat,
             table,
-            state: KineticState::new(lat, sigma),
+            state,
             field_kelvin,
             single_kelvin: single_spin_kelvin,
             attempt_times,

@@ -6,7 +6,7 @@
 //! gate keys of the six nearest neighbours (a flip changes the gate class of
 //! its six neighbours only, [`crate::gating`]).
 
-use super::SpinView;
+use super::{KineticsError, SpinView};
 use crate::gating::{self, GateClasses};
 use crate::lattice::{easy_axis, Pyrochlore};
 
@@ -26,8 +26,27 @@ pub(crate) struct KineticState {
 }
 
 impl KineticState {
+    /// The state of an engine starting from `sigma` at `temperature_kelvin`,
+    /// both checked (one ±1 per spin; a finite temperature ≥ 0).
+    pub(crate) fn checked(
+        lat: &Pyrochlore,
+        sigma: Vec<i8>,
+        temperature_kelvin: f64,
+    ) -> Result<Self, KineticsError> {
+        if sigma.len() != lat.spin_count() || sigma.iter().any(|&s| s != 1 && s != -1) {
+            return Err(KineticsError::InvalidConfiguration {
+                expected_spins: lat.spin_count(),
+                given: sigma.len(),
+            });
+        }
+        if !(temperature_kelvin >= 0.0 && temperature_kelvin.is_finite()) {
+            return Err(KineticsError::InvalidTemperature(temperature_kelvin));
+        }
+        Ok(Self::new(lat, sigma))
+    }
+
     /// Caches built from `sigma` (already checked: one ±1 per spin).
-    pub(crate) fn new(lat: &Pyrochlore, sigma: Vec<i8>) -> Self {
+    fn new(lat: &Pyrochlore, sigma: Vec<i8>) -> Self {
         let tetrahedron_sums: Vec<i8> = (0..lat.tetrahedron_count())
             .map(|t| crate::hamiltonian::tetrahedron_sum(lat, &sigma, t))
             .collect();
