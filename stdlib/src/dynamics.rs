@@ -65,7 +65,7 @@ pub use dipolar::{
 pub use exchange_flips::ExchangeFlipEnergy;
 use exponential::ExponentialZiggurat;
 pub use protocol::{
-    run_kinetics, KineticsModel, KineticsResult, KineticsSettings, Protocol,
+    run_kinetics, KineticsModel, KineticsResult, KineticsSettings, LocalFieldTables, Protocol,
     EQUILIBRATION_PROGRESS_LABEL, PREPARATION_PROGRESS_LABEL,
 };
 pub use recording::{choose_execution, KineticEngine, REJECTION_FREE_BELOW_ACCEPTANCE};
@@ -156,6 +156,19 @@ impl ZeemanField {
         }
         let mu_b = self.moment_bohr_magnetons * BOHR_MAGNETON_KELVIN_PER_TESLA * self.field_tesla;
         Some([0, 1, 2, 3].map(|a| mu_b * crate::lattice::dot(easy_axis(a), n)))
+    }
+
+    /// Single-spin energies `z_a` (K) of an optional field in the convention
+    /// of the coupling tables (energy `z_a σ`, i.e. minus
+    /// [`Self::sublattice_energy_kelvin`]); zeros without a field.
+    pub fn single_spin_kelvin(field: Option<&Self>) -> Result<[f64; 4], KineticsError> {
+        match field {
+            None => Ok([0.0; 4]),
+            Some(f) => Ok(f
+                .sublattice_energy_kelvin()
+                .ok_or(KineticsError::InvalidField)?
+                .map(|e| -e)),
+        }
     }
 }
 

@@ -653,7 +653,7 @@ fn recorded_energies_equal_the_direct_pair_sum() {
     }
     .add_to(&mut with_field)
     .unwrap();
-    let single = f.sublattice_energy_kelvin().unwrap().map(|e| -e);
+    let single = ZeemanField::single_spin_kelvin(Some(&f)).unwrap();
     let mut rng = RngStreams::new(23).stream(0);
     let sigma = initial_configuration(&lat, Start::Random, &mut rng);
     let mut dipolar = DipolarKinetics::new(

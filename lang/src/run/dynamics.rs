@@ -15,6 +15,7 @@ use icefield_stdlib::dynamics::{
     run_kinetics, Execution, KineticsModel, KineticsResult, KineticsSettings, Protocol,
     ZeemanField as KineticsField, EQUILIBRATION_PROGRESS_LABEL, PREPARATION_PROGRESS_LABEL,
 };
+use icefield_stdlib::exchange::ExchangeCouplings;
 use icefield_stdlib::gating::{
     AttemptTimes, TransverseRateLaw, GATE_CLASS_COUNT, GATE_CLASS_MAGNITUDES,
 };
@@ -393,12 +394,23 @@ impl Runner<'_> {
 /// discrete engine with J_eff, exchange shells on the discrete engine with shell-count
 /// classes, anything with the dipolar term on the local-field engine.
 fn kinetics_model(couplings: &CouplingsDecl) -> KineticsModel {
-    match (&couplings.exchange, couplings.dipolar_kelvin) {
-        (_, Some(d_kelvin)) => KineticsModel::dipolar(couplings.exchange, d_kelvin),
-        (Some(exchange), None) => KineticsModel::Exchange(*exchange),
-        (None, None) => KineticsModel::NearestNeighbour(NearestNeighbourIce {
-            j_eff_kelvin: couplings.j_eff_kelvin,
-        }),
+    kinetics_model_of(
+        couplings.j_eff_kelvin,
+        couplings.exchange,
+        couplings.dipolar_kelvin,
+    )
+}
+
+/// [`kinetics_model`] from its parts (the monopole commands keep them apart).
+pub(super) fn kinetics_model_of(
+    j_eff_kelvin: f64,
+    exchange: Option<ExchangeCouplings>,
+    dipolar_kelvin: Option<f64>,
+) -> KineticsModel {
+    match (exchange, dipolar_kelvin) {
+        (_, Some(d_kelvin)) => KineticsModel::dipolar(exchange, d_kelvin),
+        (Some(exchange), None) => KineticsModel::Exchange(exchange),
+        (None, None) => KineticsModel::NearestNeighbour(NearestNeighbourIce { j_eff_kelvin }),
     }
 }
 

@@ -14,12 +14,11 @@ use std::time::Instant;
 use icefield_stdlib::control::Progress;
 use icefield_stdlib::couplings::CouplingTable;
 use icefield_stdlib::dynamics::{
-    choose_execution, nearest_neighbour_transverse_field_kelvin, AcceptanceRule, DipolarGating,
-    DipolarKinetics, ExchangeFlipEnergy, Execution, KineticEngine, Kinetics, KineticsError,
-    NearestNeighbourFlipEnergy, ZeemanField,
+    choose_execution, AcceptanceRule, DipolarKinetics, ExchangeFlipEnergy, Execution,
+    KineticEngine, Kinetics, KineticsError, LocalFieldTables, NearestNeighbourFlipEnergy,
+    ZeemanField,
 };
 use icefield_stdlib::engine::{FlipRule, LocalFieldSampler};
-use icefield_stdlib::ewald::{DipolarInteraction, DEFAULT_EWALD_ACCURACY};
 use icefield_stdlib::exchange::{CouplingConvention, ExchangeCouplings};
 use icefield_stdlib::gating::{GATE_CLASS_COUNT, GATE_CLASS_MAGNITUDES};
 use icefield_stdlib::hamiltonian::{charge, NearestNeighbourIce};
@@ -528,40 +527,19 @@ impl Runner<'_> {
         // Dipolar models, and every model under the transverse what-if, run on the
         // local-field engine; its tables outlive the tracking (the tracker borrows them).
         let local_field = km.dipolar_kelvin.is_some() || transverse.is_some();
-        let table = if local_field {
-            let nearest = km.exchange.is_none() && km.dipolar_kelvin.is_none();
-            let pairs = GeneralModel {
-                exchange: km.exchange.or(nearest.then(|| {
-                    ExchangeCouplings::nearest_neighbour(
-                        km.j_eff_kelvin,
-                        CouplingConvention::IsingPseudospins,
-                    )
-                })),
-                dipolar_kelvin: km.dipolar_kelvin,
-                zeeman: None,
-                direction: None,
-                rule: FlipRule::Metropolis,
-                loops_per_sweep: 0,
-                ladder: Default::default(),
-            };
-            Some(coupling_table(&lat, &pairs).map_err(|e| self.runtime(keyword, e.to_string()))?)
+        let tables = if local_field {
+            let model =
+                super::dynamics::kinetics_model_of(km.j_eff_kelvin, km.exchange, km.dipolar_kelvin);
+            Some(
+                LocalFieldTables::build(&lat, &model, transverse.is_some())
+                    .map_err(|e| self.runtime(keyword, e.to_string()))?,
+            )
         } else {
             None
         };
-        let field_tables = match &transverse {
-            Some(_) => Some(
-                DipolarInteraction {
-                    d_kelvin: 1.0,
-                    accuracy: DEFAULT_EWALD_ACCURACY,
-                }
-                .field_tables(&lat)
-                .map_err(|e| self.runtime(keyword, e.to_string()))?,
-            ),
-            None => None,
-        };
         let rng = streams.stream(STREAM_KINETICS);
         let fail = |e: KineticsError| self.runtime(keyword, e.to_string());
-        let tracked = match (&km.exchange, &table) {
+        let tracked = match (&km.exchange, &tables) {
             (None, None) => {
                 let energy = NearestNeighbourFlipEnergy::new(
                     &NearestNeighbourIce::new(km.j_eff_kelvin),
@@ -596,26 +574,12 @@ impl Runner<'_> {
                 .map_err(fail)?;
                 self.track_engine(&mut engine, spec, decl.execution, &mut throttle, emit)
             }
-            (_, Some(table)) => {
-                let gating = match (&transverse, &field_tables) {
-                    (Some(law), Some(tables)) => DipolarGating::FullDipolarSum {
-                        field_tables: tables,
-                        unit_kelvin: nearest_neighbour_transverse_field_kelvin(&lat, 1.0),
-                        law: law.clone(),
-                    },
-                    _ => DipolarGating::NeighbourClasses(decl.attempt_times.clone()),
-                };
-                let single = match &km.field {
-                    Some(f) => f
-                        .sublattice_energy_kelvin()
-                        .ok_or(KineticsError::InvalidField)
-                        .map_err(fail)?
-                        .map(|e| -e),
-                    None => [0.0; 4],
-                };
+            (_, Some(tables)) => {
+                let gating = tables.gating(&lat, &decl.attempt_times, transverse.as_ref());
+                let single = ZeemanField::single_spin_kelvin(km.field.as_ref()).map_err(fail)?;
                 let mut engine = DipolarKinetics::new(
                     &lat,
-                    table,
+                    &tables.pairs,
                     single,
                     gating,
                     sigma,

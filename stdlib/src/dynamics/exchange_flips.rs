@@ -82,13 +82,7 @@ impl ExchangeFlipEnergy {
             .add_to(lat, &mut check)
             .map_err(KineticsError::Couplings)?;
         drop(check);
-        let single_spin_kelvin = match field {
-            None => [0.0; 4],
-            Some(f) => f
-                .sublattice_energy_kelvin()
-                .ok_or(KineticsError::InvalidField)?
-                .map(|e| -e),
-        };
+        let single_spin_kelvin = ZeemanField::single_spin_kelvin(field)?;
         // Partner displacements (quarter units) of the spin of sublattice a
         // at the origin, with their channel; channels with K = 0 are dropped.
         let mut coefficient = [f64::NAN; CHANNELS];

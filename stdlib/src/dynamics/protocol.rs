@@ -229,6 +229,65 @@ fn pair_table(lat: &Pyrochlore, model: &KineticsModel) -> Result<CouplingTable, 
     Ok(table)
 }
 
+/// What the local-field engine ([`DipolarKinetics`]) borrows for a model: its
+/// pair table and, for the transverse-field what-if, the dipolar field tables.
+pub struct LocalFieldTables {
+    /// Pair couplings of the model (no single-spin terms).
+    pub pairs: CouplingTable,
+    /// Field tables at D = 1 K for the transverse gate: x = |h⊥|/(one
+    /// neighbour's |h⊥|) does not depend on D.
+    pub transverse: Option<[CouplingTable; 3]>,
+}
+
+impl LocalFieldTables {
+    /// The tables of `model` on `lat`, with the field tables if
+    /// `transverse_gate` (Ewald accuracy of the model, else the default).
+    pub fn build(
+        lat: &Pyrochlore,
+        model: &KineticsModel,
+        transverse_gate: bool,
+    ) -> Result<Self, KineticsError> {
+        let accuracy = match model {
+            KineticsModel::Dipolar { ewald_accuracy, .. } => *ewald_accuracy,
+            _ => DEFAULT_EWALD_ACCURACY,
+        };
+        let transverse = if transverse_gate {
+            Some(
+                DipolarInteraction {
+                    d_kelvin: 1.0,
+                    accuracy,
+                }
+                .field_tables(lat)
+                .map_err(KineticsError::Couplings)?,
+            )
+        } else {
+            None
+        };
+        Ok(Self {
+            pairs: pair_table(lat, model)?,
+            transverse,
+        })
+    }
+
+    /// The gating: the transverse law on the dipolar field if one is given
+    /// (and the field tables were built), else the six-neighbour classes.
+    pub fn gating(
+        &self,
+        lat: &Pyrochlore,
+        attempt_times: &AttemptTimes,
+        law: Option<&TransverseRateLaw>,
+    ) -> DipolarGating<'_> {
+        match (law, &self.transverse) {
+            (Some(law), Some(tables)) => DipolarGating::FullDipolarSum {
+                field_tables: tables,
+                unit_kelvin: super::nearest_neighbour_transverse_field_kelvin(lat, 1.0),
+                law: law.clone(),
+            },
+            _ => DipolarGating::NeighbourClasses(attempt_times.clone()),
+        }
+    }
+}
+
 /// The starting configuration after `equilibration_sweeps` zero-field
 /// Metropolis sweeps at the starting temperature; `None` if interrupted.
 fn prepared_configuration(
@@ -319,49 +378,27 @@ pub fn run_kinetics(
                 NearestNeighbourFlipEnergy::new(model, field).ok_or(KineticsError::InvalidField)?;
             let zero_field =
                 NearestNeighbourFlipEnergy::new(model, None).ok_or(KineticsError::InvalidField)?;
-            let (sigma, interrupted) = prepared_configuration(
-                &lat,
-                settings,
-                None,
-                plan.start_temperature_kelvin,
-                &streams,
-                interrupt,
-                progress,
-            )?;
-            let mut engine = discrete_engine(&lat, with_field, sigma, settings, &plan, engine_rng)?;
-            drive(
-                &mut engine,
-                settings,
-                &plan,
-                interrupted,
-                interrupt,
-                progress,
-                |e| e.set_energy(zero_field),
+            discrete_run(
+                &lat, settings, &plan, &streams, engine_rng, interrupt, progress, with_field,
+                zero_field, None,
             )?
         }
         KineticsModel::Exchange(couplings) => {
             let with_field = ExchangeFlipEnergy::new(&lat, couplings, field)?;
             let zero_field = with_field.without_field();
+            // The equilibration runs on the coupling table of the same model.
             let table = pair_table(&lat, &settings.model)?;
-            let (sigma, interrupted) = prepared_configuration(
+            discrete_run(
                 &lat,
                 settings,
-                Some(&table),
-                plan.start_temperature_kelvin,
-                &streams,
-                interrupt,
-                progress,
-            )?;
-            drop(table);
-            let mut engine = discrete_engine(&lat, with_field, sigma, settings, &plan, engine_rng)?;
-            drive(
-                &mut engine,
-                settings,
                 &plan,
-                interrupted,
+                &streams,
+                engine_rng,
                 interrupt,
                 progress,
-                |e| e.set_energy(zero_field),
+                with_field,
+                zero_field,
+                Some(&table),
             )?
         }
         KineticsModel::Dipolar { .. } => local_field_run(
@@ -386,42 +423,22 @@ fn local_field_run(
     interrupt: &Interrupt,
     progress: ProgressFn<'_>,
 ) -> Result<(Trajectory, String), KineticsError> {
-    let table = pair_table(lat, &settings.model)?;
-    let accuracy = match &settings.model {
-        KineticsModel::Dipolar { ewald_accuracy, .. } => *ewald_accuracy,
-        _ => DEFAULT_EWALD_ACCURACY,
-    };
-    let field_tables = match &settings.transverse_from_dipolar_sum {
-        Some(_) => Some(
-            // D = 1 K: x = |h⊥|/(one neighbour's |h⊥|) does not depend on D.
-            DipolarInteraction {
-                d_kelvin: 1.0,
-                accuracy,
-            }
-            .field_tables(lat)
-            .map_err(KineticsError::Couplings)?,
-        ),
-        None => None,
-    };
-    let gating = match (&settings.transverse_from_dipolar_sum, &field_tables) {
-        (Some(law), Some(tables)) => DipolarGating::FullDipolarSum {
-            field_tables: tables,
-            unit_kelvin: super::nearest_neighbour_transverse_field_kelvin(lat, 1.0),
-            law: law.clone(),
-        },
-        _ => DipolarGating::NeighbourClasses(settings.attempt_times.clone()),
-    };
-    let single = match &settings.field {
-        None => [0.0; 4],
-        Some(f) => f
-            .sublattice_energy_kelvin()
-            .ok_or(KineticsError::InvalidField)?
-            .map(|e| -e),
-    };
+    let tables = LocalFieldTables::build(
+        lat,
+        &settings.model,
+        settings.transverse_from_dipolar_sum.is_some(),
+    )?;
+    let table = &tables.pairs;
+    let gating = tables.gating(
+        lat,
+        &settings.attempt_times,
+        settings.transverse_from_dipolar_sum.as_ref(),
+    );
+    let single = ZeemanField::single_spin_kelvin(settings.field.as_ref())?;
     let (sigma, interrupted) = prepared_configuration(
         lat,
         settings,
-        Some(&table),
+        Some(table),
         plan.start_temperature_kelvin,
         streams,
         interrupt,
@@ -429,7 +446,7 @@ fn local_field_run(
     )?;
     let mut engine = DipolarKinetics::new(
         lat,
-        &table,
+        table,
         single,
         gating,
         sigma,
@@ -448,22 +465,48 @@ fn local_field_run(
     )
 }
 
-fn discrete_engine<'a, E: super::DiscreteFlipEnergy>(
-    lat: &'a Pyrochlore,
-    energy: E,
-    sigma: Vec<i8>,
+/// A run on [`Kinetics`] (discrete flip energies): equilibration (on `table`
+/// for coupling-table models), then the protocol; the field is switched off
+/// by replacing `with_field` with `zero_field`.
+#[allow(clippy::too_many_arguments)]
+fn discrete_run<E: super::DiscreteFlipEnergy>(
+    lat: &Pyrochlore,
     settings: &KineticsSettings,
     plan: &Plan,
-    rng: SpinRng,
-) -> Result<Kinetics<'a, E>, KineticsError> {
-    Kinetics::new(
+    streams: &RngStreams,
+    engine_rng: SpinRng,
+    interrupt: &Interrupt,
+    progress: ProgressFn<'_>,
+    with_field: E,
+    zero_field: E,
+    table: Option<&CouplingTable>,
+) -> Result<(Trajectory, String), KineticsError> {
+    let (sigma, interrupted) = prepared_configuration(
         lat,
-        energy,
+        settings,
+        table,
+        plan.start_temperature_kelvin,
+        streams,
+        interrupt,
+        progress,
+    )?;
+    let mut engine = Kinetics::new(
+        lat,
+        with_field,
         sigma,
         settings.rule,
         plan.start_temperature_kelvin,
         settings.attempt_times.clone(),
-        rng,
+        engine_rng,
+    )?;
+    drive(
+        &mut engine,
+        settings,
+        plan,
+        interrupted,
+        interrupt,
+        progress,
+        |e| e.set_energy(zero_field),
     )
 }
 
